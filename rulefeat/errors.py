@@ -1,0 +1,52 @@
+"""The library's one error hierarchy and its warning class (contract 7).
+
+Every error raised on bad input derives from :class:`RulefeatError`, so callers
+can catch the library's errors without catching programming mistakes.  The
+concrete classes also derive from :class:`ValueError`, which is what
+scikit-learn's own checks and most users expect for bad input.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "RulefeatError",
+    "LogSchemaError",
+    "UnitError",
+    "RuleSyntaxError",
+    "RuleCheckError",
+    "EvaluationError",
+    "RulefeatWarning",
+    "LogRepairWarning",
+]
+
+
+class RulefeatError(Exception):
+    """Base class of every error raised by rulefeat on bad input or configuration."""
+
+
+class LogSchemaError(RulefeatError, ValueError):
+    """The event table cannot be turned into an :class:`~rulefeat.EventLog`."""
+
+
+class UnitError(RulefeatError, ValueError):
+    """A units table (X) does not describe units of the event log."""
+
+
+class RuleSyntaxError(RulefeatError, ValueError):
+    """A rule's text does not follow the grammar of the rule language."""
+
+
+class RuleCheckError(RulefeatError, ValueError):
+    """A rule parses but does not make sense against the log's schema or the other rules."""
+
+
+class EvaluationError(RulefeatError, ValueError):
+    """An evaluation cannot be run as asked (bad splitter, too few students, ...)."""
+
+
+class RulefeatWarning(UserWarning):
+    """Base class of rulefeat's warnings."""
+
+
+class LogRepairWarning(RulefeatWarning):
+    """The event log repaired or flagged rows of its input; see ``EventLog.issues``."""
