@@ -1,0 +1,142 @@
+"""Vectorized per-unit aggregations over a :class:`~rulefeat.units.UnitIndex`.
+
+Shared by the rule features and the mined log features, so both aggregate to
+units in exactly one way.  Every function takes per-event arrays in log order
+and returns one value per unit.  Empty units give 0 for counts and NaN for
+everything else.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .units import UnitIndex
+
+
+class Aggregator:
+    """Aggregations over one unit index; per-unit bookkeeping is computed once."""
+
+    def __init__(self, index: UnitIndex, time: np.ndarray):
+        self.index = index
+        self.sizes = index.sizes
+        self.nonempty = self.sizes > 0
+        self.starts = index.indptr[:-1][self.nonempty]
+        self.unit_of = index.unit_of_event()
+        self.position = np.arange(len(index.events)) - np.repeat(index.indptr[:-1], self.sizes)
+        self.time = time[index.events]
+
+    def take(self, values: np.ndarray) -> np.ndarray:
+        """Per-event values laid out unit by unit."""
+        return values[self.index.events]
+
+    def _reduce(self, ufunc, laid: np.ndarray, fill: float) -> np.ndarray:
+        out = np.full(self.index.n_units, fill, dtype=np.float64)
+        if len(self.starts):
+            out[self.nonempty] = ufunc.reduceat(laid, self.starts)
+        return out
+
+    # -- counts -------------------------------------------------------------
+    def count(self, mask: np.ndarray) -> np.ndarray:
+        laid = self.take(mask).astype(np.float64)
+        return self._reduce(np.add, laid, 0.0)
+
+    def size(self) -> np.ndarray:
+        return self.sizes.astype(np.float64)
+
+    def rate(self, mask: np.ndarray, of: np.ndarray | None = None) -> np.ndarray:
+        """Share of the unit's events (or of those in ``of``) where ``mask`` holds; NaN when none."""
+        num = self.count(mask if of is None else mask & of)
+        den = self.size() if of is None else self.count(of)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(den > 0, num / np.where(den > 0, den, 1), np.nan)
+
+    def any(self, mask: np.ndarray) -> np.ndarray:
+        return (self.count(mask) > 0).astype(np.float64)
+
+    def nunique(self, codes: np.ndarray) -> np.ndarray:
+        """Distinct non-missing codes per unit."""
+        laid = self.take(codes).astype(np.int64)
+        ok = laid >= 0
+        pairs = self.unit_of[ok] * (int(laid.max(initial=0)) + 1) + laid[ok]
+        unique_units = np.unique(pairs) // (int(laid.max(initial=0)) + 1)
+        return np.bincount(unique_units, minlength=self.index.n_units).astype(np.float64)
+
+    # -- values ---------------------------------------------------------------
+    def stat(self, values: np.ndarray, how: str, mask: np.ndarray | None = None) -> np.ndarray:
+        """NaN-skipping ``sum, mean, min, max, std, median`` of a number field (optionally masked)."""
+        laid = self.take(values).astype(np.float64)
+        if mask is not None:
+            laid = np.where(self.take(mask), laid, np.nan)
+        ok = ~np.isnan(laid)
+        n = self._reduce(np.add, ok.astype(np.float64), 0.0)
+        if how == "median":
+            return self._median(laid, ok, n)
+        zero = np.where(ok, laid, 0.0)
+        total = self._reduce(np.add, zero, np.nan)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            if how == "sum":
+                return np.where(self.nonempty, total, 0.0)
+            mean = np.where(n > 0, total / np.where(n > 0, n, 1), np.nan)
+            if how == "mean":
+                return mean
+            if how == "std":
+                dev = np.where(ok, laid - np.repeat(mean, self.sizes), 0.0)
+                ss = self._reduce(np.add, dev * dev, np.nan)
+                return np.where(n > 1, np.sqrt(ss / np.where(n > 1, n - 1, 1)), np.nan)
+        fill = -np.inf if how == "max" else np.inf
+        ufunc = np.maximum if how == "max" else np.minimum
+        out = self._reduce(ufunc, np.where(ok, laid, fill), np.nan)
+        return np.where(n > 0, out, np.nan)
+
+    def _median(self, laid, ok, n) -> np.ndarray:
+        order = np.lexsort((np.where(ok, laid, np.inf), self.unit_of))
+        ranked = laid[order]
+        first = self.index.indptr[:-1]
+        lo = first + np.maximum((n.astype(np.int64) - 1) // 2, 0)
+        hi = first + np.maximum(n.astype(np.int64) // 2, 0)
+        out = np.full(self.index.n_units, np.nan)
+        has = n > 0
+        out[has] = (ranked[lo[has]] + ranked[hi[has]]) / 2.0
+        return out
+
+    # -- sequence -----------------------------------------------------------------
+    def longest_run(self, mask: np.ndarray) -> np.ndarray:
+        """Longest run of consecutive unit events where ``mask`` holds (0 when none)."""
+        laid = self.take(mask).astype(bool)
+        run = run_lengths(laid, self.position == 0)
+        return self._reduce(np.maximum, run.astype(np.float64), 0.0)
+
+    def first_position(self, mask: np.ndarray) -> np.ndarray:
+        """1-based position in the unit of the first event where ``mask`` holds; NaN when none."""
+        laid = self.take(mask).astype(bool)
+        big = np.iinfo(np.int64).max
+        pos = np.where(laid, self.position, big)
+        out = self._reduce(np.minimum, pos.astype(np.float64), np.nan)
+        return np.where(out < big, out + 1, np.nan)
+
+    def first_seconds(self, mask: np.ndarray) -> np.ndarray:
+        """Seconds from the unit's start to the first event where ``mask`` holds; NaN when none."""
+        laid = self.take(mask).astype(bool)
+        t = np.where(laid, self.time, np.inf)
+        first = self._reduce(np.minimum, t, np.nan)
+        return np.where(np.isfinite(first), first - self.index.start_time, np.nan)
+
+    def first_value(self, values: np.ndarray) -> np.ndarray:
+        laid = self.take(values).astype(np.float64)
+        out = np.full(self.index.n_units, np.nan)
+        out[self.nonempty] = laid[self.starts]
+        return out
+
+    def last_value(self, values: np.ndarray) -> np.ndarray:
+        laid = self.take(values).astype(np.float64)
+        out = np.full(self.index.n_units, np.nan)
+        out[self.nonempty] = laid[self.index.indptr[1:][self.nonempty] - 1]
+        return out
+
+
+def run_lengths(flags: np.ndarray, resets: np.ndarray) -> np.ndarray:
+    """Length of the run of True ending at each position; runs restart where ``resets`` is True."""
+    idx = np.arange(len(flags))
+    marker = np.where(~flags, idx, np.where(resets, idx - 1, -1))
+    last_break = np.maximum.accumulate(marker) if len(flags) else marker
+    return np.where(flags, idx - last_break, 0)

@@ -1,0 +1,102 @@
+"""The one layer that touches pandas internals.
+
+Everything else in rulefeat works on plain numpy arrays produced here, which
+keeps pandas-version differences (2.x vs 3.x, Copy-on-Write, the string
+dtype, nullable dtypes) in a single module.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from pandas.api import types as ptypes
+
+NS_PER_SECOND = 1_000_000_000
+
+TIME_UNITS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9, "min": 60.0, "h": 3600.0}
+
+
+def is_datetime(series: pd.Series) -> bool:
+    return ptypes.is_datetime64_any_dtype(series.dtype)
+
+
+def is_numeric(series: pd.Series) -> bool:
+    return ptypes.is_numeric_dtype(series.dtype) and not ptypes.is_bool_dtype(series.dtype)
+
+
+def is_boolean(series: pd.Series) -> bool:
+    return ptypes.is_bool_dtype(series.dtype)
+
+
+def missing_mask(series: pd.Series) -> np.ndarray:
+    return np.asarray(series.isna().to_numpy(), dtype=bool)
+
+
+def datetime_ns(series: pd.Series) -> np.ndarray:
+    """Nanoseconds since the epoch as int64 (UTC for zone-aware input); NaT stays the int64 minimum."""
+    if getattr(series.dt, "tz", None) is not None:
+        series = series.dt.tz_convert("UTC").dt.tz_localize(None)
+    return series.astype("datetime64[ns]").to_numpy().view("int64")
+
+
+def parse_datetimes(series: pd.Series) -> pd.Series:
+    """Parse ISO 8601 text; unparseable entries become NaT (the caller reports them)."""
+    text = series.astype("string")
+    try:
+        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce")
+    except (ValueError, TypeError):
+        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True)
+    if parsed.dtype == object:  # mixed offsets on pandas 2.x
+        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True)
+    return parsed
+
+
+def to_float(series: pd.Series) -> np.ndarray:
+    return np.asarray(pd.to_numeric(series, errors="coerce").astype("float64").to_numpy(), dtype=np.float64)
+
+
+def factorize(series: pd.Series) -> tuple[np.ndarray, pd.Index]:
+    """Integer codes (int32, -1 for missing) and sorted categories of a column."""
+    if isinstance(series.dtype, pd.CategoricalDtype):
+        series = series.cat.remove_unused_categories()
+        cats = series.cat.categories
+        codes = series.cat.codes.to_numpy().astype(np.int32)
+        order = _sorted_order(cats)
+        if not np.array_equal(order, np.arange(len(cats))):
+            remap = np.empty(len(cats), dtype=np.int32)
+            remap[order] = np.arange(len(cats), dtype=np.int32)
+            codes = np.where(codes >= 0, remap[np.maximum(codes, 0)], -1).astype(np.int32)
+            cats = cats[order]
+        return codes, pd.Index(cats)
+    try:
+        codes, uniques = pd.factorize(series, sort=True)
+    except TypeError:  # mixed, unorderable labels: order them as text
+        codes, uniques = pd.factorize(series.astype("string"), sort=True)
+    return codes.astype(np.int32), pd.Index(uniques)
+
+
+def _sorted_order(cats: pd.Index) -> np.ndarray:
+    try:
+        return np.asarray(cats.argsort(), dtype=np.int64)
+    except TypeError:
+        return np.asarray(cats.astype(str).argsort(), dtype=np.int64)
+
+
+def codes_for(values, categories: pd.Index) -> np.ndarray:
+    """Codes of ``values`` against known ``categories`` (-1 where absent)."""
+    values = pd.Series(values)
+    if isinstance(values.dtype, pd.CategoricalDtype):
+        values = values.astype(values.cat.categories.dtype)
+    idx = categories.get_indexer(pd.Index(values))
+    if (idx < 0).any() and categories.dtype != object:
+        as_text = categories.astype(str).get_indexer(pd.Index(values.astype(str)))
+        idx = np.where(idx < 0, as_text, idx)
+    return np.asarray(idx, dtype=np.int64)
+
+
+def frame_from_arrays(columns: dict[str, object], index=None) -> pd.DataFrame:
+    return pd.DataFrame(columns, index=index, copy=False)
+
+
+def categorical(codes: np.ndarray, categories: pd.Index) -> pd.Categorical:
+    return pd.Categorical.from_codes(np.asarray(codes), categories=categories)
