@@ -15,6 +15,7 @@ __all__ = [
     "RuleSyntaxError",
     "RuleCheckError",
     "EvaluationError",
+    "ParameterError",
     "RulefeatWarning",
     "LogRepairWarning",
 ]
@@ -42,6 +43,10 @@ class RuleCheckError(RulefeatError, ValueError):
 
 class EvaluationError(RulefeatError, ValueError):
     """An evaluation cannot be run as asked (bad splitter, too few students, ...)."""
+
+
+class ParameterError(RulefeatError, ValueError):
+    """An estimator or function parameter has a value outside what it accepts."""
 
 
 class RulefeatWarning(UserWarning):
