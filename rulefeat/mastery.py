@@ -49,7 +49,7 @@ from sklearn.base import BaseEstimator
 from sklearn.utils.validation import check_is_fitted
 
 from . import _bkt_kernels
-from .errors import LogSchemaError, RulefeatError
+from .errors import LogSchemaError, ParameterError
 
 __all__ = ["BKT", "BKTParams", "MasteryTrace"]
 
@@ -240,12 +240,12 @@ class BKTParams:
         arrays["log_likelihood"] = _readonly(self.log_likelihood, float)
         lengths = {name: len(arr) for name, arr in arrays.items()}
         if len(set(lengths.values())) > 1:
-            raise RulefeatError(f"BKTParams: the per-skill arrays must have one length; got {lengths}.")
+            raise ParameterError(f"BKTParams: the per-skill arrays must have one length; got {lengths}.")
         pooled = [float(getattr(self, f"pooled_{n[2:]}")) for n in _PARAM_NAMES]
         for name, values in [*((n, arrays[n]) for n in _PARAM_NAMES), ("pooled", np.array(pooled))]:
             bad = ~((values > 0) & (values < 1))
             if bad.any():
-                raise RulefeatError(
+                raise ParameterError(
                     f"BKTParams: {name} must lie strictly between 0 and 1; got {values[bad][0].item()!r} "
                     f"at {_rows(bad).replace('row', 'index')}."
                 )
@@ -406,11 +406,11 @@ class BKT(BaseEstimator):
         for name, (test, expected) in _CONSTRAINTS.items():
             value = getattr(self, name)
             if not test(value):
-                raise RulefeatError(
+                raise ParameterError(
                     f"The {name!r} parameter of BKT must be {expected}. Got {value!r} instead."
                 )
         if self.guess_max + self.slip_max >= 1:
-            raise RulefeatError(
+            raise ParameterError(
                 "The 'guess_max' and 'slip_max' parameters of BKT must sum to less than 1, so that a "
                 f"student who knows the skill is likelier to be right. Got {self.guess_max!r} + "
                 f"{self.slip_max!r} instead."
