@@ -53,26 +53,88 @@ class Aggregator:
     def any(self, mask: np.ndarray) -> np.ndarray:
         return (self.count(mask) > 0).astype(np.float64)
 
-    def nunique(self, codes: np.ndarray) -> np.ndarray:
-        """Distinct non-missing codes per unit."""
+    def nunique(self, codes: np.ndarray, mask: np.ndarray | None = None) -> np.ndarray:
+        """Distinct non-missing codes per unit (among the events where ``mask`` holds, if given)."""
+        units, _ = self.distinct(codes, mask)
+        return np.bincount(units, minlength=self.index.n_units).astype(np.float64)
+
+    def distinct(self, codes: np.ndarray, mask: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """``(unit, code)`` of every distinct non-missing code of each unit, sorted by unit then code."""
+        units, codes, _, _ = self.code_spans(codes, mask)
+        return units, codes
+
+    def code_spans(self, codes: np.ndarray, mask: np.ndarray | None = None):
+        """For every distinct ``(unit, code)``: unit, code, and laid positions of its first and last event.
+
+        Codes below 0 count as missing and are skipped.  Laid positions index
+        arrays returned by :meth:`take`, so callers can read per-pair values.
+        """
         laid = self.take(codes).astype(np.int64)
         ok = laid >= 0
-        pairs = self.unit_of[ok] * (int(laid.max(initial=0)) + 1) + laid[ok]
-        unique_units = np.unique(pairs) // (int(laid.max(initial=0)) + 1)
-        return np.bincount(unique_units, minlength=self.index.n_units).astype(np.float64)
+        if mask is not None:
+            ok &= self.take(mask).astype(bool)
+        sel = np.flatnonzero(ok)
+        width = int(laid.max(initial=0)) + 1
+        key = self.unit_of[sel] * width + laid[sel]
+        # Units are laid in order, so a stable sort keeps each pair's events in unit order.
+        order = np.argsort(key, kind="stable")
+        key = key[order]
+        change = key[1:] != key[:-1]
+        first = np.concatenate([[True], change]) if len(key) else np.zeros(0, dtype=bool)
+        last = np.concatenate([change, [True]]) if len(key) else np.zeros(0, dtype=bool)
+        return key[first] // width, key[first] % width, sel[order[first]], sel[order[last]]
+
+    def unit_mean(self, units: np.ndarray, values: np.ndarray) -> np.ndarray:
+        """NaN-skipping mean per unit of values given for (unit, ...) pairs; NaN when a unit has none."""
+        ok = ~np.isnan(values)
+        n = np.bincount(units[ok], minlength=self.index.n_units)
+        total = np.bincount(units[ok], weights=values[ok], minlength=self.index.n_units)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(n > 0, total / np.where(n > 0, n, 1), np.nan)
+
+    def pair_counts(self, tokens: np.ndarray, n_tokens: int) -> np.ndarray:
+        """Counts of consecutive event pairs per unit, shape ``(n_units, n_tokens ** 2)``.
+
+        A pair is two events of the unit that follow each other directly in the
+        student's stream (adjacent in log order); column ``a * n_tokens + b``
+        counts pairs whose first event has token ``a`` and second token ``b``.
+        ``tokens`` holds integers in ``[0, n_tokens)`` per event.
+        """
+        ev = self.index.events
+        j = np.flatnonzero(self.position > 0)
+        j = j[ev[j] == ev[j - 1] + 1]
+        laid = self.take(tokens).astype(np.int64)
+        width = n_tokens * n_tokens
+        flat = np.bincount(self.unit_of[j] * width + laid[j - 1] * n_tokens + laid[j],
+                           minlength=self.index.n_units * width)
+        return flat.reshape(self.index.n_units, width).astype(np.float64)
 
     # -- values ---------------------------------------------------------------
     def stat(self, values: np.ndarray, how: str, mask: np.ndarray | None = None) -> np.ndarray:
         """NaN-skipping ``sum, mean, min, max, std, median`` of a number field (optionally masked)."""
+        return self.describe(values, (how,), mask)[how]
+
+    def describe(self, values: np.ndarray, hows, mask: np.ndarray | None = None) -> dict:
+        """Several :meth:`stat` statistics of one field at once, laying it out only once."""
         laid = self.take(values).astype(np.float64)
         if mask is not None:
             laid = np.where(self.take(mask), laid, np.nan)
         ok = ~np.isnan(laid)
         n = self._reduce(np.add, ok.astype(np.float64), 0.0)
+        moments = {}
+        return {how: self._one_stat(how, laid, ok, n, moments) for how in hows}
+
+    def _one_stat(self, how, laid, ok, n, moments) -> np.ndarray:
         if how == "median":
             return self._median(laid, ok, n)
-        zero = np.where(ok, laid, 0.0)
-        total = self._reduce(np.add, zero, np.nan)
+        if how in ("min", "max"):
+            fill = -np.inf if how == "max" else np.inf
+            ufunc = np.maximum if how == "max" else np.minimum
+            out = self._reduce(ufunc, np.where(ok, laid, fill), np.nan)
+            return np.where(n > 0, out, np.nan)
+        if "total" not in moments:
+            moments["total"] = self._reduce(np.add, np.where(ok, laid, 0.0), np.nan)
+        total = moments["total"]
         with np.errstate(invalid="ignore", divide="ignore"):
             if how == "sum":
                 return np.where(self.nonempty, total, 0.0)
@@ -83,10 +145,8 @@ class Aggregator:
                 dev = np.where(ok, laid - np.repeat(mean, self.sizes), 0.0)
                 ss = self._reduce(np.add, dev * dev, np.nan)
                 return np.where(n > 1, np.sqrt(ss / np.where(n > 1, n - 1, 1)), np.nan)
-        fill = -np.inf if how == "max" else np.inf
-        ufunc = np.maximum if how == "max" else np.minimum
-        out = self._reduce(ufunc, np.where(ok, laid, fill), np.nan)
-        return np.where(n > 0, out, np.nan)
+        raise ValueError(f"Aggregator.stat: unknown statistic {how!r}; use one of "
+                         "['sum', 'mean', 'min', 'max', 'std', 'median'].")
 
     def _median(self, laid, ok, n) -> np.ndarray:
         order = np.lexsort((np.where(ok, laid, np.inf), self.unit_of))
@@ -100,11 +160,26 @@ class Aggregator:
         return out
 
     # -- sequence -----------------------------------------------------------------
-    def longest_run(self, mask: np.ndarray) -> np.ndarray:
-        """Longest run of consecutive unit events where ``mask`` holds (0 when none)."""
+    def longest_run(self, mask: np.ndarray, among: np.ndarray | None = None) -> np.ndarray:
+        """Longest run of consecutive unit events where ``mask`` holds (0 when none).
+
+        With ``among``, only events where ``among`` holds take part: the others
+        neither extend nor break a run (e.g. errors in a row, hints skipped).
+        """
         laid = self.take(mask).astype(bool)
-        run = run_lengths(laid, self.position == 0)
-        return self._reduce(np.maximum, run.astype(np.float64), 0.0)
+        if among is None:
+            run = run_lengths(laid, self.position == 0)
+            return self._reduce(np.maximum, run.astype(np.float64), 0.0)
+        keep = np.flatnonzero(self.take(among))
+        units = self.unit_of[keep]
+        resets = np.ones(len(keep), dtype=bool)
+        resets[1:] = units[1:] != units[:-1]
+        run = run_lengths(laid[keep], resets).astype(np.float64)
+        out = np.zeros(self.index.n_units)
+        starts = np.flatnonzero(resets)
+        if len(starts):
+            out[units[starts]] = np.maximum.reduceat(run, starts)
+        return out
 
     def first_position(self, mask: np.ndarray) -> np.ndarray:
         """1-based position in the unit of the first event where ``mask`` holds; NaN when none."""

@@ -1,0 +1,54 @@
+"""Mined log features: systematic, generic per-unit features in families.
+
+The families form a table (:data:`FAMILIES`, name -> :class:`Family`), so a new
+family is one entry here and one module; :class:`rulefeat.LogFeatures` reads
+the table and never names a family itself.  Each family's ``compute`` returns
+``{feature: per-unit array}``; the transformer names the columns
+``<family>__<feature>``.  Formulas and the missing-data policy of every feature
+are in docs/features.md.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+from . import counts, knowledge, stream, timing
+from ._events import Settings, TrainingEvents, UnitView
+
+__all__ = ["Family", "FAMILIES", "DEFAULT_FAMILIES", "Settings", "TrainingEvents", "UnitView"]
+
+
+@dataclass(frozen=True)
+class Family:
+    """A group of features computed together.
+
+    Attributes
+    ----------
+    compute : callable
+        ``compute(view, state) -> {feature: ndarray of shape (n_units,)}``; the
+        keys must depend on the settings only, never on the data.
+    fit : callable or None
+        ``fit(training_events, settings) -> state`` learns from the training
+        students' events only; None for families that learn nothing.
+    summary : str
+        One line for listings.
+    """
+
+    compute: Callable
+    fit: Callable | None = None
+    summary: str = ""
+
+
+FAMILIES: dict[str, Family] = {
+    "volume": Family(counts.volume, summary="actions, attempts, hints, rates per minute, distinct keys"),
+    "correctness": Family(counts.correctness, summary="accuracy, first-attempt accuracy, errors, streaks"),
+    "help": Family(counts.help_seeking, summary="hints per step, hints before attempting, last hints"),
+    "timing": Family(timing.compute, timing.fit, summary="durations raw and against step/skill norms, pauses"),
+    "sequence": Family(stream.sequence, summary="shares of consecutive right/wrong/hint pairs"),
+    "history": Family(stream.history, summary="the student's past accuracy and hint rate on the skills"),
+    "mastery": Family(knowledge.compute, knowledge.fit, summary="BKT P(known) at start/end, change"),
+}
+
+#: The families used when ``families=None``: all of them.
+DEFAULT_FAMILIES: tuple[str, ...] = tuple(FAMILIES)

@@ -1,0 +1,84 @@
+"""The mastery family: Bayesian Knowledge Tracing estimates of what the student knows during the unit.
+
+Fit runs :class:`rulefeat.mastery.BKT` on the training students' attempts with
+a known outcome (contract 2).  Transform filters each (student, skill) attempt
+sequence of the units' students forward with the fitted parameters, so a unit
+reads P(known) given the student's own earlier attempts only.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..mastery import BKT
+from . import _events as ev
+from ._events import Settings, TrainingEvents, UnitView
+
+FEATURES = ("p_known_at_start", "p_known_at_end", "p_known_mean", "p_known_change",
+            "mastered_attempt_share", "surprise_mean")
+
+
+def fit(train: TrainingEvents, settings: Settings) -> BKT | None:
+    """A BKT model of the training attempts; None when the training students made no judged attempt."""
+    log = train.log
+    judged = train.positions[ev.judged_attempts(log)[train.positions]]
+    judged = _budget(log, judged, settings)
+    if not len(judged):
+        return None
+    options = {**settings.bkt_options, "random_state": settings.random_state}
+    student, skill, correct = _attempt_arrays(log, judged)
+    return BKT(**options).fit(student, skill, correct)
+
+
+def _budget(log, judged: np.ndarray, settings: Settings) -> np.ndarray:
+    """At most ``bkt_max_attempts`` attempts, taking whole students in a seeded random order."""
+    cap = settings.bkt_max_attempts
+    if cap is None or len(judged) <= cap:
+        return judged
+    student = log.values("student")[judged]
+    ids, counts = np.unique(student, return_counts=True)
+    order = np.random.default_rng(settings.random_state).permutation(len(ids))
+    take = order[np.cumsum(counts[order]) <= cap]
+    keep = np.zeros(len(ids), dtype=bool)
+    keep[take if len(take) else order[:1]] = True
+    return judged[np.repeat(keep, counts)]
+
+
+def _attempt_arrays(log, positions: np.ndarray):
+    return (log.values("student")[positions], ev.codes(log, "skill")[positions],
+            log.values("correct")[positions])
+
+
+def compute(view: UnitView, model: BKT | None) -> dict[str, np.ndarray]:
+    if model is None:
+        return {name: view.nan() for name in FEATURES}
+    log, agg = view.log, view.agg
+    before, after, predicted = _trace(view, model)
+    # One value per (unit, skill) the unit attempted; attempts without a skill form their own sequence.
+    units, _, first, last = agg.code_spans(ev.codes(log, "skill").astype(np.int64) + 1, mask=view.judged)
+    start = agg.unit_mean(units, agg.take(before)[first])
+    end = agg.unit_mean(units, agg.take(after)[last])
+    with np.errstate(invalid="ignore"):
+        mastered = before >= view.settings.mastery_threshold
+    return {
+        "p_known_at_start": start,
+        "p_known_at_end": end,
+        "p_known_mean": agg.stat(before, "mean"),
+        "p_known_change": end - start,
+        "mastered_attempt_share": agg.rate(mastered, of=view.judged),
+        "surprise_mean": agg.stat(log.values("correct") - predicted, "mean"),
+    }
+
+
+def _trace(view: UnitView, model: BKT):
+    """P(known) before / after and predicted P(correct) per event (NaN off the judged attempts)."""
+    log = view.log
+    events = view.students_events()
+    judged = events[view.judged[events]]
+    trace = model.forward(*_attempt_arrays(log, judged))
+    out = []
+    for values in trace:
+        full = np.full(len(log), np.nan)
+        full[judged] = values
+        out.append(full)
+    return out

@@ -1,0 +1,118 @@
+"""The timing family: how long actions take, relative to what is typical, and pauses.
+
+Fit learns, from the training students' events only (contract 2), the median
+duration (and median log-duration) of every step and every skill, the overall
+medians used for keys never seen in training, and the gap quantiles that define
+a pause.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from . import _events as ev
+from ._events import Settings, TrainingEvents, UnitView
+
+STATS = (("mean", "mean"), ("median", "median"), ("max", "max"), ("sd", "std"))
+NORM_KEYS = ("step", "skill")
+
+
+@dataclass(frozen=True)
+class KeyNorm:
+    """Typical value per key code; the last entry is the overall value used for unseen keys."""
+
+    table: np.ndarray
+    n_events: np.ndarray
+
+    def lookup(self, codes: np.ndarray) -> np.ndarray:
+        n_keys = len(self.table) - 1
+        idx = np.where((codes >= 0) & (codes < n_keys), codes, n_keys)
+        return self.table[idx]
+
+
+@dataclass(frozen=True)
+class TimingState:
+    """Fitted norms ``{(base, key): KeyNorm}`` and pause thresholds ``{quantile: seconds}``."""
+
+    norms: dict
+    pause_seconds: dict
+
+
+def pause_name(q: float) -> str:
+    """'pauses_over_q90' for 0.9; dots become underscores ('q99_5')."""
+    return "pauses_over_q" + f"{q * 100:g}".replace(".", "_")
+
+
+def fit(train: TrainingEvents, settings: Settings) -> TimingState:
+    log = train.log
+    bases = {"duration": train.values("duration"), "log_duration": train.take(ev.log_duration(log))}
+    norms = {}
+    for key in NORM_KEYS:
+        key_codes = train.take(ev.codes(log, key))
+        n_keys = len(log.categories(key)) if log.has(key) else 0
+        for base, values in bases.items():
+            norms[(base, key)] = _fit_norm(key_codes, values, n_keys, settings.min_norm_events)
+    gap = train.values("gap")
+    gap = gap[~np.isnan(gap)]
+    pauses = {float(q): (float(np.quantile(gap, q)) if len(gap) else np.nan) for q in settings.pause_quantiles}
+    return TimingState(norms=norms, pause_seconds=pauses)
+
+
+def _fit_norm(key_codes, values, n_keys: int, min_events: int) -> KeyNorm:
+    """Median per key; keys with fewer than ``min_events`` values or a median <= 0 use the overall median."""
+    ok = ~np.isnan(values)
+    overall = float(np.median(values[ok])) if ok.any() else np.nan
+    medians, counts = group_medians(key_codes[ok], values[ok], n_keys)
+    usable = (counts >= min_events) & (medians > 0)
+    table = np.append(np.where(usable, medians, overall), overall)
+    table.flags.writeable = False
+    return KeyNorm(table=table, n_events=counts)
+
+
+def group_medians(codes: np.ndarray, values: np.ndarray, n_codes: int) -> tuple[np.ndarray, np.ndarray]:
+    """Median and count of ``values`` per code in ``[0, n_codes)``; NaN median for codes without values."""
+    keep = codes >= 0
+    codes, values = codes[keep], values[keep]
+    order = np.lexsort((values, codes))
+    codes, values = codes[order], values[order]
+    lo = np.searchsorted(codes, np.arange(n_codes), side="left")
+    counts = np.searchsorted(codes, np.arange(n_codes), side="right") - lo
+    has = counts > 0
+    mid_lo = np.minimum(lo + np.maximum(counts - 1, 0) // 2, max(len(values) - 1, 0))
+    mid_hi = np.minimum(lo + counts // 2, max(len(values) - 1, 0))
+    medians = np.full(n_codes, np.nan)
+    if len(values):
+        medians[has] = (values[mid_lo[has]] + values[mid_hi[has]]) / 2.0
+    return medians, counts
+
+
+def compute(view: UnitView, state: TimingState) -> dict[str, np.ndarray]:
+    log, agg = view.log, view.agg
+    out = {}
+    raw = {"duration": log.values("duration"), "log_duration": ev.log_duration(log)}
+    for base, values in raw.items():
+        variants = {"": values}
+        for key in NORM_KEYS:
+            typical = state.norms[(base, key)].lookup(ev.codes(log, key))
+            variants[f"_norm_{key}"] = _normalise(base, values, typical)
+        for suffix, per_event in variants.items():
+            stats = agg.describe(per_event, [how for _, how in STATS])
+            out.update({f"{base}_{name}{suffix}": stats[how] for name, how in STATS})
+    gap = log.values("gap")
+    for q, seconds in state.pause_seconds.items():
+        with np.errstate(invalid="ignore"):
+            out[pause_name(q)] = agg.count(gap > seconds)
+    elapsed = ev.session_elapsed(log)
+    out["session_elapsed_at_start"] = agg.first_value(elapsed)
+    out["session_elapsed_at_end"] = agg.last_value(elapsed)
+    return out
+
+
+def _normalise(base: str, values: np.ndarray, typical: np.ndarray) -> np.ndarray:
+    """Durations as a ratio to the typical one; log-durations as a difference (the log of that ratio)."""
+    if base == "log_duration":
+        return values - typical
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(typical > 0, values / np.where(typical > 0, typical, 1.0), np.nan)
