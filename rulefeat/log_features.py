@@ -52,6 +52,8 @@ class LogFeatures(UnitTransformer):
     families : list of str, optional
         Which families to compute (names in ``rulefeat.mined.FAMILIES``); None means all:
         volume, correctness, help, timing, sequence, history, mastery.
+    prune : bool, default=True
+        Drop features that are constant or exact duplicates on the training units.
     max_features : int, optional
         Keep at most this many features, ranked on the training units (|Spearman| with y
         when fit gets y, else rank variance; ties by name).  None keeps every
@@ -107,13 +109,14 @@ class LogFeatures(UnitTransformer):
     [[3.0, 0.6666666666666666], [2.0, 0.0]]
     """
 
-    def __init__(self, log, unit="window", families=None, max_features=None, mastery_threshold=0.95,
+    def __init__(self, log, unit="window", families=None, prune=True, max_features=None, mastery_threshold=0.95,
                  pause_quantiles=(0.9, 0.99), min_norm_events=5, hint_level_field="hint_level",
                  hint_total_field="hint_levels_total", bkt_options=None, bkt_max_attempts=1_000_000,
                  missing_students="error", random_state=None):
         self.log = log
         self.unit = unit
         self.families = families
+        self.prune = prune
         self.max_features = max_features
         self.mastery_threshold = mastery_threshold
         self.pause_quantiles = pause_quantiles
@@ -130,6 +133,7 @@ class LogFeatures(UnitTransformer):
         return {
             **super()._constraints(),
             "families": (_is_names, f"None or a non-empty list of family names from {list(FAMILIES)!r}"),
+            "prune": (lambda v: isinstance(v, (bool, np.bool_)), "True or False"),
             "max_features": (lambda v: v is None or (_is_int(v) and v >= 1), "None or an int >= 1"),
             "mastery_threshold": (_is_prob, "a float strictly between 0 and 1"),
             "pause_quantiles": (_is_quantiles, "a list of distinct floats strictly between 0 and 1"),
@@ -222,7 +226,7 @@ class LogFeatures(UnitTransformer):
         self.family_state_ = {name: FAMILIES[name].fit(train, self.settings_) if FAMILIES[name].fit else None
                               for name in families}
         columns = self._compute(self._resolve(X, "fit"), families)
-        chosen = select(columns, y, self.max_features, where=self._where("fit"))
+        chosen = select(columns, y, self.max_features, prune=bool(self.prune), where=self._where("fit"))
         self.candidate_features_ = list(columns)
         self.feature_names_out_ = chosen.kept
         self.dropped_features_ = chosen.dropped

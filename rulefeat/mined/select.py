@@ -40,12 +40,16 @@ class Selection:
     scores: dict = field(default_factory=dict)
 
 
-def select(columns: dict, y=None, max_features: int | None = None, where: str = "select") -> Selection:
-    """Apply the three steps of the module docstring to ``{name: training values}``."""
+def select(columns: dict, y=None, max_features: int | None = None, *, prune: bool = True,
+           where: str = "select") -> Selection:
+    """Apply the steps of the module docstring to ``{name: training values}`` (1-2 only if ``prune``)."""
     out = Selection()
     seen: dict[bytes, str] = {}
     for name, values in columns.items():
         values = np.asarray(values, dtype=np.float64)
+        if not prune:
+            out.kept.append(name)
+            continue
         if is_constant(values):
             out.dropped[name] = "constant on the training units"
             continue
