@@ -1,0 +1,106 @@
+"""Fitted norms: per-key quantiles and z-score moments learned from training events only.
+
+State is stored per category code of the ``per`` field.  Sub-logs share their
+parent's categories, so a code means the same key in the training log and in
+any log evaluated later.  Keys with fewer than ``min_count`` training values,
+keys never seen in training and events whose key is missing use the overall
+training statistic (DESIGN.md contract 2).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["grouped_quantile", "fit_typical", "fit_zscore", "apply_typical", "apply_zscore"]
+
+
+def _lerp(a: np.ndarray, b: np.ndarray, t: np.ndarray) -> np.ndarray:
+    # numpy's own linear interpolation (numpy.quantile, method='linear'), so results agree to the bit.
+    diff = b - a
+    out = a + diff * t
+    return np.where(t >= 0.5, b - diff * (1 - t), out)
+
+
+def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float) -> tuple[np.ndarray, np.ndarray]:
+    """(count, q-quantile) of ``values`` for every key ``0..n_keys-1``; NaN where a key has no values.
+
+    Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7).
+    """
+    order = np.lexsort((values, keys))
+    v, k = values[order], keys[order]
+    count = np.bincount(k, minlength=n_keys)[:n_keys].astype(np.int64)
+    first = np.cumsum(count) - count
+    has = count > 0
+    virtual = (count[has] - 1) * q
+    lo = np.floor(virtual).astype(np.int64)
+    hi = np.minimum(lo + 1, count[has] - 1)
+    at_top = virtual >= count[has] - 1
+    lo = np.where(at_top, count[has] - 1, lo)
+    out = np.full(n_keys, np.nan)
+    if has.any():
+        start = first[has]
+        out[has] = _lerp(v[start + lo], v[start + hi], virtual - np.floor(virtual))
+        out[has] = np.where(at_top, v[start + count[has] - 1], out[has])
+    return count, out
+
+
+def _grouped_moments(values: np.ndarray, keys: np.ndarray, n_keys: int):
+    # bincount adds in input order, a plain sequential sum (documented so references can match it).
+    count = np.bincount(keys, minlength=n_keys)[:n_keys].astype(np.int64)
+    total = np.bincount(keys, weights=values, minlength=n_keys)[:n_keys]
+    with np.errstate(all="ignore"):
+        mean = total / count
+        dev = values - mean[keys]
+        sq = np.bincount(keys, weights=dev * dev, minlength=n_keys)[:n_keys]
+        sd = np.sqrt(sq / (count - 1))
+    sd = np.where(count > 1, sd, np.nan)
+    return count, np.where(count > 0, mean, np.nan), sd
+
+
+def _training(values: np.ndarray, keys: np.ndarray, among: np.ndarray | None):
+    use = ~np.isnan(values)
+    if among is not None:
+        use &= among
+    keyed = use & (keys >= 0)
+    return values[use], values[keyed], keys[keyed].astype(np.int64)
+
+
+def fit_typical(values: np.ndarray, keys: np.ndarray, n_keys: int, *, q: float, min_count: int,
+                among: np.ndarray | None = None) -> dict:
+    """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values."""
+    every, v, k = _training(values, keys, among)
+    overall = float(np.quantile(every, q)) if len(every) else float("nan")
+    count, per_key = grouped_quantile(v, k, n_keys, q)
+    value = np.where(count >= min_count, per_key, overall)
+    return {"count": count, "value": value, "overall": overall}
+
+
+def fit_zscore(values: np.ndarray, keys: np.ndarray, n_keys: int, *, min_count: int,
+               among: np.ndarray | None = None) -> dict:
+    """Mean and sample sd (ddof=1) per key; overall moments for rare keys, overall sd where a key's sd is 0."""
+    every, v, k = _training(values, keys, among)
+    _, (overall_mean,), (overall_sd,) = _grouped_moments(every, np.zeros(len(every), dtype=np.int64), 1)
+    count, mean, sd = _grouped_moments(v, k, n_keys)
+    enough = count >= min_count
+    mean = np.where(enough, mean, overall_mean)
+    sd = np.where(enough & (sd > 0), sd, overall_sd)
+    return {"count": count, "mean": mean, "sd": sd,
+            "overall_mean": float(overall_mean), "overall_sd": float(overall_sd)}
+
+
+def _by_key(per_key: np.ndarray, overall: float, keys: np.ndarray) -> np.ndarray:
+    safe = np.where(keys >= 0, keys, 0)
+    return np.where(keys >= 0, per_key[safe] if len(per_key) else overall, overall)
+
+
+def apply_typical(state: dict, keys: np.ndarray) -> np.ndarray:
+    return _by_key(state["value"], state["overall"], keys)
+
+
+def apply_zscore(state: dict, values: np.ndarray, keys: np.ndarray) -> np.ndarray:
+    mean = _by_key(state["mean"], state["overall_mean"], keys)
+    sd = _by_key(state["sd"], state["overall_sd"], keys)
+    with np.errstate(all="ignore"):
+        z = (values - mean) / sd
+    # A zero or undefined overall sd leaves nothing to scale by: the z-score is missing.
+    return np.where(np.isfinite(z), z, np.nan)
