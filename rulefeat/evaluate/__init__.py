@@ -1,1 +1,24 @@
-"""Student-grouped evaluation of the rules' added value: splits, variants, statistics and reports."""
+"""Student-grouped evaluation of the rules' added value: splits, variants, statistics and reports.
+
+>>> from rulefeat.evaluate import thread_budget
+>>> thread_budget(None, cores=2)
+(1, 2)
+"""
+
+from .engine import incremental_value, incremental_value_precomputed, make_detector
+from .guards import GuardWarning
+from .metrics import METRICS
+from .models import default_model, thread_budget
+from .splits import GROUP_AWARE
+
+__all__ = ["incremental_value", "incremental_value_precomputed", "make_detector", "default_model",
+           "thread_budget", "GuardWarning", "METRICS", "GROUP_AWARE", "IncrementalValueReport"]
+
+
+def __getattr__(name):
+    # The report class is imported on first use, so the engine works while the report module is optional.
+    if name == "IncrementalValueReport":
+        from .report import IncrementalValueReport
+
+        return IncrementalValueReport
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
