@@ -149,8 +149,7 @@ class Aggregator:
                          "['sum', 'mean', 'min', 'max', 'std', 'median'].")
 
     def _median(self, laid, ok, n) -> np.ndarray:
-        order = np.lexsort((np.where(ok, laid, np.inf), self.unit_of))
-        ranked = laid[order]
+        ranked = sort_pairs(self.unit_of, np.where(ok, laid, np.inf))
         first = self.index.indptr[:-1]
         lo = first + np.maximum((n.astype(np.int64) - 1) // 2, 0)
         hi = first + np.maximum(n.astype(np.int64) // 2, 0)
@@ -215,3 +214,17 @@ def run_lengths(flags: np.ndarray, resets: np.ndarray) -> np.ndarray:
     marker = np.where(~flags, idx, np.where(resets, idx - 1, -1))
     last_break = np.maximum.accumulate(marker) if len(flags) else marker
     return np.where(flags, idx - last_break, 0)
+
+
+def sort_pairs(keys: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """``values`` sorted by (key, value), returned as values only.
+
+    The pairs are packed into complex numbers, which numpy sorts by real then
+    imaginary part: one in-place sort, several times faster than ``lexsort``
+    on two keys.  Keys must be exact as float64 (integers below 2**53).
+    """
+    packed = np.empty(len(values), dtype=np.complex128)
+    packed.real = keys
+    packed.imag = values
+    packed.sort()
+    return packed.imag.copy()

@@ -246,12 +246,3 @@ class LogFeatures(UnitTransformer):
             values = FAMILIES[name].compute(view, self.family_state_[name])
             columns.update({f"{name}__{feature}": col for feature, col in values.items()})
         return columns
-
-    def __sklearn_tags__(self):
-        # UnitTransformer.__sklearn_tags__ sets input_tags.dataframe, which scikit-learn's InputTags
-        # (1.6 and later) does not have; set the same tags here without it.
-        tags = super(UnitTransformer, self).__sklearn_tags__()
-        tags.input_tags.two_d_array = False
-        tags.input_tags.string = True
-        tags.requires_fit = True
-        return tags

@@ -133,11 +133,14 @@ def session_elapsed(log: EventLog) -> np.ndarray:
 
 
 def log_duration(log: EventLog) -> np.ndarray:
+    """log(1 + duration) per event (see :func:`log_of_duration`)."""
+    return _memo(log, "log-duration", lambda: log_of_duration(log.values("duration")))
+
+
+def log_of_duration(seconds: np.ndarray) -> np.ndarray:
     """log(1 + duration): finite for zero-length actions, NaN where duration is missing."""
-    def compute():
-        with np.errstate(invalid="ignore"):
-            return np.log1p(np.maximum(log.values("duration"), 0.0))
-    return _memo(log, "log-duration", compute)
+    with np.errstate(invalid="ignore"):
+        return np.log1p(np.maximum(seconds, 0.0))
 
 
 def number(log: EventLog, name: str) -> np.ndarray | None:

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .._aggregate import sort_pairs
 from . import _events as ev
 from ._events import Settings, TrainingEvents, UnitView
 
@@ -47,45 +48,49 @@ def pause_name(q: float) -> str:
 
 def fit(train: TrainingEvents, settings: Settings) -> TimingState:
     log = train.log
-    bases = {"duration": train.values("duration"), "log_duration": train.take(ev.log_duration(log))}
+    durations = train.values("duration")
+    known = ~np.isnan(durations)
+    durations = durations[known]
     norms = {}
     for key in NORM_KEYS:
-        key_codes = train.take(ev.codes(log, key))
         n_keys = len(log.categories(key)) if log.has(key) else 0
-        for base, values in bases.items():
-            norms[(base, key)] = _fit_norm(key_codes, values, n_keys, settings.min_norm_events)
+        codes = train.take(ev.codes(log, key))[known]
+        ranked, counts = sort_by_key(codes, durations, n_keys)
+        # log(1 + d) is increasing in d, so one sort by (key, duration) serves both bases.
+        for base, scale in (("duration", None), ("log_duration", ev.log_of_duration)):
+            values = durations if scale is None else scale(durations)
+            medians = key_medians(ranked if scale is None else scale(ranked), counts)
+            norms[(base, key)] = _norm(medians, counts, values, settings.min_norm_events)
     gap = train.values("gap")
     gap = gap[~np.isnan(gap)]
     pauses = {float(q): (float(np.quantile(gap, q)) if len(gap) else np.nan) for q in settings.pause_quantiles}
     return TimingState(norms=norms, pause_seconds=pauses)
 
 
-def _fit_norm(key_codes, values, n_keys: int, min_events: int) -> KeyNorm:
-    """Median per key; keys with fewer than ``min_events`` values or a median <= 0 use the overall median."""
-    ok = ~np.isnan(values)
-    overall = float(np.median(values[ok])) if ok.any() else np.nan
-    medians, counts = group_medians(key_codes[ok], values[ok], n_keys)
+def _norm(medians, counts, values, min_events: int) -> KeyNorm:
+    """Keys with fewer than ``min_events`` values or a median <= 0 use the overall median."""
+    overall = float(np.median(values)) if len(values) else np.nan
     usable = (counts >= min_events) & (medians > 0)
     table = np.append(np.where(usable, medians, overall), overall)
     table.flags.writeable = False
     return KeyNorm(table=table, n_events=counts)
 
 
-def group_medians(codes: np.ndarray, values: np.ndarray, n_codes: int) -> tuple[np.ndarray, np.ndarray]:
-    """Median and count of ``values`` per code in ``[0, n_codes)``; NaN median for codes without values."""
+def sort_by_key(codes: np.ndarray, values: np.ndarray, n_codes: int) -> tuple[np.ndarray, np.ndarray]:
+    """Values of codes in ``[0, n_codes)`` sorted by (code, value), and the count of each code."""
     keep = codes >= 0
     codes, values = codes[keep], values[keep]
-    order = np.lexsort((values, codes))
-    codes, values = codes[order], values[order]
-    lo = np.searchsorted(codes, np.arange(n_codes), side="left")
-    counts = np.searchsorted(codes, np.arange(n_codes), side="right") - lo
+    counts = np.bincount(codes, minlength=n_codes)[:n_codes] if len(codes) else np.zeros(n_codes, np.int64)
+    return sort_pairs(codes, values), counts
+
+
+def key_medians(ranked: np.ndarray, counts: np.ndarray) -> np.ndarray:
+    """Median of each code's block of ``ranked`` (as laid out by :func:`sort_by_key`); NaN when empty."""
+    lo = np.cumsum(counts) - counts
     has = counts > 0
-    mid_lo = np.minimum(lo + np.maximum(counts - 1, 0) // 2, max(len(values) - 1, 0))
-    mid_hi = np.minimum(lo + counts // 2, max(len(values) - 1, 0))
-    medians = np.full(n_codes, np.nan)
-    if len(values):
-        medians[has] = (values[mid_lo[has]] + values[mid_hi[has]]) / 2.0
-    return medians, counts
+    medians = np.full(len(counts), np.nan)
+    medians[has] = (ranked[lo[has] + (counts[has] - 1) // 2] + ranked[lo[has] + counts[has] // 2]) / 2.0
+    return medians
 
 
 def compute(view: UnitView, state: TimingState) -> dict[str, np.ndarray]:
