@@ -4,6 +4,7 @@ from .errors import (
     EvaluationError,
     LogRepairWarning,
     LogSchemaError,
+    ParameterError,
     RuleCheckError,
     RulefeatError,
     RulefeatWarning,
@@ -11,6 +12,9 @@ from .errors import (
     UnitError,
 )
 from .log import EventLog, LogIssue, read_events
+from .log_features import LogFeatures
+from .rule_features import RuleFeatures
+from .rules import Rule, RuleSet
 
 __version__ = "0.1.0"
 
@@ -18,12 +22,17 @@ __all__ = [
     "EventLog",
     "LogIssue",
     "read_events",
+    "Rule",
+    "RuleSet",
+    "RuleFeatures",
+    "LogFeatures",
     "RulefeatError",
     "LogSchemaError",
     "UnitError",
     "RuleSyntaxError",
     "RuleCheckError",
     "EvaluationError",
+    "ParameterError",
     "RulefeatWarning",
     "LogRepairWarning",
 ]

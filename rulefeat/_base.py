@@ -101,7 +101,6 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
 
     def __sklearn_tags__(self):
         tags = super().__sklearn_tags__()
-        tags.input_tags.two_d_array = False
         tags.input_tags.string = True
         tags.requires_fit = True
         return tags

@@ -95,7 +95,8 @@ def codes_for(values, categories: pd.Index) -> np.ndarray:
 
 
 def frame_from_arrays(columns: dict[str, object], index=None) -> pd.DataFrame:
-    return pd.DataFrame(columns, index=index, copy=False)
+    """A DataFrame that owns writable copies (the log's own arrays are read-only)."""
+    return pd.DataFrame(columns, index=index, copy=True)
 
 
 def categorical(codes: np.ndarray, categories: pd.Index) -> pd.Categorical:

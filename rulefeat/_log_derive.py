@@ -80,8 +80,8 @@ def _parse_fields(data, mapping, out: Built, time_unit, correct_values, actions)
             continue
         if str(name) in (*parse.DERIVED, "session", "duration", "correct"):
             raise LogSchemaError(
-                f"EventLog: column {name!r} has the name of a field the log derives; rename it "
-                f"(or map it with columns={{{str(name)!r}: {str(name)!r}}} if it is that field)."
+                f"EventLog: column {name!r} has the name of a field the log derives itself; drop the "
+                "column or rename it (EventLog.to_frame(derived=False) gives a table without them)."
             )
         values, kind, cats = parse.parse_extra(data[name])
         out.put(str(name), values, kind, cats)

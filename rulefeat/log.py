@@ -12,7 +12,7 @@ import pandas as pd
 
 from . import _frame
 from . import _log_derive as derive
-from ._log_parse import LogIssue
+from ._log_parse import DERIVED, LogIssue
 from ._text import did_you_mean
 from .errors import LogRepairWarning, LogSchemaError, UnitError
 
@@ -132,8 +132,7 @@ class EventLog:
         return len(self._row)
 
     def __repr__(self) -> str:
-        return (f"EventLog({len(self)} events, {self.n_students} students, "
-                f"fields={list(self._fields)!r}, issues={len(self.issues)})")
+        return f"EventLog({len(self)} events, {self.n_students} students, {len(self._fields)} fields)"
 
     # -- schema ---------------------------------------------------------------
     @property
@@ -207,9 +206,22 @@ class EventLog:
         """For each event in log order, its 0-based row position in the input table."""
         return self._row
 
-    def to_frame(self) -> pd.DataFrame:
-        """The log as a DataFrame in log order (labels restored), indexed by input row number."""
-        cols = {name: self.decoded(name).to_numpy() for name in self._fields}
+    def derived_fields(self) -> tuple[str, ...]:
+        """Fields the log computed rather than read (``gap``, positions, and derived session/duration)."""
+        own = [name for name in DERIVED if name in self._fields]
+        own += [name for name in ("session", "duration") if self._settings[f"{name}_derived"]]
+        if "correct" not in self._settings["columns"]:
+            own.append("correct")  # filled with missing values when the input had none
+        return tuple(own)
+
+    def to_frame(self, *, derived: bool = True) -> pd.DataFrame:
+        """The log as a DataFrame in log order (labels restored), indexed by input row number.
+
+        With ``derived=False`` the fields the log computed itself are left out, so the
+        table can be edited and turned into a new log.
+        """
+        skip = () if derived else self.derived_fields()
+        cols = {name: self.decoded(name).to_numpy() for name in self._fields if name not in skip}
         return _frame.frame_from_arrays(cols, index=pd.Index(self._row, name="input_row"))
 
     def summary(self) -> dict:

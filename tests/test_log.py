@@ -54,7 +54,7 @@ BAD_INPUTS = [
     (frame(), {"columns": {"skill": "kc"}}, r"maps 'skill' to 'kc', which is not a column"),
     (frame(time=[0.0, np.nan, 1.0]), {}, r"column 'time': 1 rows have no time.*row 1"),
     (frame(action=["attempt", None, "hint"]), {}, r"column 'action': 1 rows have no action"),
-    (frame(gap=[1, 2, 3]), {}, r"column 'gap' has the name of a field the log derives"),
+    (frame(gap=[1, 2, 3]), {}, r"column 'gap' has the name of a field the log derives itself"),
     ("not a frame", {}, r"expected a pandas DataFrame"),
     (frame(), {"duplicates": "remove"}, r"'duplicates' parameter of EventLog must be one of"),
     (frame(), {"session_gap": -1}, r"'session_gap' parameter of EventLog must be a positive number"),
