@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ._base import UnitTransformer, check_params
+from ._base import UnitTransformer
 from ._text import did_you_mean
 from .errors import RuleCheckError
 from .rules import Rule, RuleSet
