@@ -17,6 +17,7 @@ import joblib
 import numpy as np
 import pandas as pd
 from sklearn.base import clone
+from threadpoolctl import threadpool_limits
 
 from ..errors import EvaluationError
 from .guards import Finding, feature_findings
@@ -122,6 +123,7 @@ class Job:
     task: str
     ablation: bool
     fractions: tuple
+    threads: int | None = None
     guards: bool = True
 
 
@@ -152,7 +154,7 @@ class Outcome:
     seconds: dict = field(default_factory=dict)
 
 
-def _predict(est, Z: pd.DataFrame, task: str) -> np.ndarray:
+def _predict(est, Z: np.ndarray, task: str) -> np.ndarray:
     if task == "regression":
         return np.asarray(est.predict(Z), dtype=float).ravel()
     classes = list(getattr(est, "classes_", [0, 1]))
@@ -168,12 +170,13 @@ def _fit_predict(job: Job, ff: FoldFeatures, cols: np.ndarray, y_tr: np.ndarray,
     if len(cols) == 0:
         constant = float(y_tr.mean())
         return np.full(len(ff.test), constant), np.full(len(rows), constant)
-    names = [ff.names[j] for j in cols]
-    Ztr = pd.DataFrame(ff.train[np.ix_(rows, cols)], columns=names)
+    # Plain arrays, columns in FeatureUnion order (mined, then rules): pandas frames would only add validation
+    # overhead to the many small fits, and models give the same numbers either way.
+    Ztr = ff.train[np.ix_(rows, cols)]
     est = clone(job.model)
     try:
         est.fit(Ztr, y_tr.astype(int) if classification else y_tr)
-        test = _predict(est, pd.DataFrame(ff.test[:, cols], columns=names), job.task)
+        test = _predict(est, ff.test[:, cols], job.task)
         train = _predict(est, Ztr, job.task) if classification else None
     except EvaluationError:
         raise
@@ -223,7 +226,9 @@ def run_task(job: Job, task: Task) -> Outcome:
     """Run one fold (in a joblib worker): features, models, predictions."""
     fold = task.fold
     t0 = time.perf_counter()
-    with warnings.catch_warnings(record=True) as caught:
+    # With several workers the thread budget holds for every library in a worker (BLAS, OpenMP), not only the
+    # default model; a single worker leaves the caller's thread settings alone (threads=None).
+    with warnings.catch_warnings(record=True) as caught, threadpool_limits(limits=job.threads):
         warnings.simplefilter("always")
         ff = job.source.features(fold.train, fold.test, job.y[fold.train])
         t1 = time.perf_counter()

@@ -8,7 +8,9 @@ How each number is made (also written into every evaluation's notes):
   *students* with replacement (a student's units stay together).  AUC takes the fast vectorised path of
   :func:`~rulefeat.evaluate.stats.grouped_bootstrap_auc_difference`; metrics that are sums over rows (kappa's
   confusion counts, log loss, Brier, R², RMSE) are bootstrapped here from per-student sums times a matrix of
-  student multiplicities; average precision uses :func:`~rulefeat.evaluate.stats.grouped_bootstrap_metric_difference`.
+  student multiplicities, and average precision from cumulative sums of the multiplicity-weighted rows sorted by
+  score — all vectorised over blocks of replicates.  Replicates without both classes (classification) or with a
+  constant target (R²) are dropped.
 * ``p_value`` (the headline test): the corrected resampled t-test (Nadeau & Bengio 2003) on the per-fold
   differences of all repeats, ``n_train`` / ``n_test`` the mean fold sizes in units.  With
   ``alternative="greater"`` it is one-sided, H1 "the variant is better than the baseline": Δ > 0 for metrics where
@@ -59,8 +61,9 @@ def directional_p(t: float, df: float, two_sided: float, higher_is_better: bool,
         return float(two_sided)
     if t == 0 and two_sided == 1.0:  # every difference exactly 0: no evidence either way
         return 1.0
-    dist = sps.norm if np.isinf(df) else sps.t(df)
-    return float(dist.sf(t) if higher_is_better else dist.cdf(t))
+    if np.isinf(df):
+        return float(sps.norm.sf(t) if higher_is_better else sps.norm.cdf(t))
+    return float(sps.t.sf(t, df) if higher_is_better else sps.t.cdf(t, df))
 
 
 def paired_test(d: np.ndarray, n_train: float, n_test: float, higher_is_better: bool,
@@ -80,9 +83,12 @@ def paired_test(d: np.ndarray, n_train: float, n_test: float, higher_is_better: 
     }
 
 
-def _multiplicities(n_groups: int, n_boot: int, rng: np.random.Generator):
-    """Blocks of (replicates, groups) counts: each replicate draws n_groups students with replacement."""
-    block = max(1, min(n_boot, _BLOCK_ELEMENTS // max(n_groups, 1)))
+def _multiplicities(n_groups: int, n_boot: int, rng: np.random.Generator, n_rows: int = 0):
+    """Blocks of (replicates, groups) counts: each replicate draws n_groups students with replacement.
+
+    Blocks hold at most ~4M numbers of (replicates x max(groups, rows)), whatever ``n_boot``.
+    """
+    block = max(1, min(n_boot, _BLOCK_ELEMENTS // max(n_groups, n_rows, 1)))
     for start in range(0, n_boot, block):
         size = min(block, n_boot - start)
         draws = rng.integers(0, n_groups, size=(size, n_groups))
@@ -142,6 +148,41 @@ def _summed_bootstrap(metric, y, groups, a, b, n_boot, rng) -> tuple[float, np.n
     return estimate, np.concatenate(reps)
 
 
+class _Ranked:
+    """One score's rows sorted high to low, with the last row of each distinct score (for average precision)."""
+
+    def __init__(self, y: np.ndarray, score: np.ndarray, codes: np.ndarray):
+        order = np.argsort(-score, kind="stable")
+        s = score[order]
+        self.y, self.codes = y[order].astype(bool), codes[order]
+        self.last = np.flatnonzero(np.r_[s[1:] != s[:-1], True])
+
+    def average_precision(self, counts: np.ndarray) -> np.ndarray:
+        """AP of every replicate (rows of ``counts``, multiplicities per student); NaN without positives."""
+        w = counts[:, self.codes]
+        tp = np.cumsum(w * self.y, axis=1)[:, self.last]
+        fp = np.cumsum(w * ~self.y, axis=1)[:, self.last]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            precision = np.where(tp + fp > 0, tp / (tp + fp), 0.0)
+            gain = np.diff(tp / tp[:, -1:], axis=1, prepend=0.0)
+            return np.where(tp[:, -1] > 0, np.sum(gain * precision, axis=1), np.nan)
+
+
+def _ap_bootstrap(y, groups, a, b, n_boot, rng) -> tuple[float, np.ndarray]:
+    """Average precision's difference over student-bootstrap replicates, vectorised per block of replicates."""
+    _, codes = np.unique(groups, return_inverse=True)
+    n_groups = int(codes.max()) + 1
+    ranked = [_Ranked(y, s, codes) for s in (a, b)]
+    estimate = weighted_average_precision(y, a) - weighted_average_precision(y, b)
+    reps = []
+    for counts in _multiplicities(n_groups, n_boot, rng, n_rows=len(y)):
+        has_both = (counts @ np.bincount(codes, weights=y, minlength=n_groups) > 0) & (
+            counts @ np.bincount(codes, weights=1 - y, minlength=n_groups) > 0)
+        reps.append(np.where(has_both, ranked[0].average_precision(counts) - ranked[1].average_precision(counts),
+                             np.nan))
+    return float(estimate), np.concatenate(reps)
+
+
 def bootstrap_delta(pooled: Pooled, variant: str, baseline: str, metric: str, n_boot: int,
                     seed: int) -> tuple[float, float, float]:
     """Δ = metric(variant) - metric(baseline) on pooled predictions, with the 95 % student-bootstrap interval."""
@@ -151,14 +192,13 @@ def bootstrap_delta(pooled: Pooled, variant: str, baseline: str, metric: str, n_
     if metric == "auc":
         r = stats.grouped_bootstrap_auc_difference(y, a, b, g, n_boot=n_boot, alpha=ALPHA, random_state=seed)
         return r.estimate, r.ci_low, r.ci_high
+    rng = np.random.default_rng(seed)
     if metric == "average_precision":
-        r = stats.grouped_bootstrap_metric_difference(y, a, b, g, weighted_average_precision, n_boot=n_boot,
-                                                      alpha=ALPHA, random_state=seed)
-        return r.estimate, r.ci_low, r.ci_high
-    la = pooled.labels(variant)[keep] if metric == "kappa" else None
-    lb = pooled.labels(baseline)[keep] if metric == "kappa" else None
-    estimate, reps = _summed_bootstrap(metric, y.astype(float), g, (a, la), (b, lb), n_boot,
-                                       np.random.default_rng(seed))
+        estimate, reps = _ap_bootstrap(y, g, a, b, n_boot, rng)
+    else:
+        la = pooled.labels(variant)[keep] if metric == "kappa" else None
+        lb = pooled.labels(baseline)[keep] if metric == "kappa" else None
+        estimate, reps = _summed_bootstrap(metric, y.astype(float), g, (a, la), (b, lb), n_boot, rng)
     valid = reps[np.isfinite(reps)]
     if not len(valid):
         raise EvaluationError(f"bootstrap of {metric}: no replicate gave a defined value; too few students.")

@@ -160,7 +160,8 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
     if model is None:
         model = default_model(inputs.task, seeds.model, threads)
     model = _check_model(model, inputs.task)
-    job = Job(source, inputs.y, inputs.students, model, inputs.task, settings["ablation"], settings["fractions"])
+    job = Job(source, inputs.y, inputs.students, model, inputs.task, settings["ablation"], settings["fractions"],
+              threads if workers > 1 else None)
     t1 = time.perf_counter()
     outcomes = run_all(job, tasks, workers, settings["verbose"])
     t2 = time.perf_counter()

@@ -8,10 +8,10 @@ splits, so their per-fold scores are paired.
 
 from __future__ import annotations
 
+import copy
 from dataclasses import dataclass
 
 import numpy as np
-from sklearn.base import clone
 from sklearn.model_selection import (
     GroupKFold,
     GroupShuffleSplit,
@@ -83,14 +83,15 @@ def _splitter_for_repeat(cv, seed: int, repeats: int, where: str):
         return StratifiedGroupKFold(n_splits=cv, shuffle=True, random_state=seed)
     if repeats == 1:
         return cv
-    params = cv.get_params()
-    if "random_state" not in params or params.get("shuffle") is False:
+    if not hasattr(cv, "random_state") or getattr(cv, "shuffle", True) is False:
         raise EvaluationError(
             f"{where}: repeats={repeats} needs a splitter that draws different splits per repeat, but "
             f"{type(cv).__name__} gives the same splits every time. Pass repeats=1, an int cv, or a splitter with "
             "shuffle=True and a random_state (e.g. StratifiedGroupKFold(shuffle=True), GroupShuffleSplit)."
         )
-    return clone(cv).set_params(random_state=seed)
+    splitter = copy.deepcopy(cv)
+    splitter.random_state = seed
+    return splitter
 
 
 def student_folds(y: np.ndarray, groups: np.ndarray, cv, repeats: int, seeds: list[int], task: str,
