@@ -15,6 +15,7 @@ __all__ = [
     "RuleSyntaxError",
     "RuleCheckError",
     "EvaluationError",
+    "SimulationError",
     "ParameterError",
     "RulefeatWarning",
     "LogRepairWarning",
@@ -47,6 +48,10 @@ class EvaluationError(RulefeatError, ValueError):
 
 class ParameterError(RulefeatError, ValueError):
     """An estimator or function parameter has a value outside what it accepts."""
+
+
+class SimulationError(RulefeatError, ValueError):
+    """A knob of the log simulator (:mod:`rulefeat.simulate`) is out of range or unknown."""
 
 
 class RulefeatWarning(UserWarning):
