@@ -69,7 +69,8 @@ def window_pairs(log: EventLog, windows: pd.DataFrame) -> pd.DataFrame:
     """(unit, event) pairs of non-overlapping windows with pandas merge_asof (the reference's unit step)."""
     f = event_table(log)
     origin = log.decoded("time").min()
-    keys = pd.DataFrame({"student": windows["student"].astype(str).to_numpy(), "unit": np.arange(len(windows)),
+    keys = pd.DataFrame({"student": windows["student"].astype(str).to_numpy(),
+                         "unit": np.arange(len(windows)),
                          "start": (windows["start"] - origin).dt.total_seconds().to_numpy(),
                          "end": (windows["end"] - origin).dt.total_seconds().to_numpy()})
     f["student"] = f["student"].astype(str)

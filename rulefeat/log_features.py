@@ -35,6 +35,11 @@ def _is_quantiles(v) -> bool:
     return isinstance(v, (list, tuple)) and all(_is_prob(q) for q in v) and len(set(v)) == len(v)
 
 
+def _fit_family(name: str, train: TrainingEvents, settings: Settings):
+    fit = FAMILIES[name].fit
+    return None if fit is None else fit(train, settings)
+
+
 class LogFeatures(UnitTransformer):
     """Mined features of every unit's events, in families (see docs/features.md for every formula).
 
@@ -109,10 +114,10 @@ class LogFeatures(UnitTransformer):
     [[3.0, 0.6666666666666666], [2.0, 0.0]]
     """
 
-    def __init__(self, log, unit="window", families=None, prune=True, max_features=None, mastery_threshold=0.95,
-                 pause_quantiles=(0.9, 0.99), min_norm_events=5, hint_level_field="hint_level",
-                 hint_total_field="hint_levels_total", bkt_options=None, bkt_max_attempts=1_000_000,
-                 missing_students="error", random_state=None):
+    def __init__(self, log, unit="window", families=None, prune=True, max_features=None,
+                 mastery_threshold=0.95, pause_quantiles=(0.9, 0.99), min_norm_events=5,
+                 hint_level_field="hint_level", hint_total_field="hint_levels_total", bkt_options=None,
+                 bkt_max_attempts=1_000_000, missing_students="error", random_state=None):
         self.log = log
         self.unit = unit
         self.families = families
@@ -223,10 +228,13 @@ class LogFeatures(UnitTransformer):
             raise UnitError(f"{self._where('fit')}: none of the students in X is in the event log; "
                             "there is nothing to learn from.")
         self.families_ = families
-        self.family_state_ = {name: FAMILIES[name].fit(train, self.settings_) if FAMILIES[name].fit else None
-                              for name in families}
+        self.family_state_ = {name: _fit_family(name, train, self.settings_) for name in families}
         columns = self._compute(self._resolve(X, "fit"), families)
         chosen = select(columns, y, self.max_features, prune=bool(self.prune), where=self._where("fit"))
+        if not chosen.kept:
+            raise UnitError(f"{self._where('fit')}: every candidate feature is constant or a duplicate "
+                            f"on the {len(X)} training unit(s), so none is left. Fit on more (and more "
+                            "varied) units, or pass prune=False.")
         self.candidate_features_ = list(columns)
         self.feature_names_out_ = chosen.kept
         self.dropped_features_ = chosen.dropped

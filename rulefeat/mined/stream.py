@@ -79,7 +79,8 @@ def prior_counts(view: UnitView) -> dict[str, np.ndarray]:
             for name, p in streams["prefix"].items()}
 
 
-def search_within(sorted_values: np.ndarray, lo: np.ndarray, hi: np.ndarray, target: np.ndarray) -> np.ndarray:
+def search_within(sorted_values: np.ndarray, lo: np.ndarray, hi: np.ndarray,
+                  target: np.ndarray) -> np.ndarray:
     """Vectorized binary search: first index in ``[lo, hi)`` with ``sorted_values >= target`` (else hi).
 
     ``sorted_values`` must be sorted within every ``[lo, hi)`` range, not globally.

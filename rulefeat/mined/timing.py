@@ -63,7 +63,8 @@ def fit(train: TrainingEvents, settings: Settings) -> TimingState:
             norms[(base, key)] = _norm(medians, counts, values, settings.min_norm_events)
     gap = train.values("gap")
     gap = gap[~np.isnan(gap)]
-    pauses = {float(q): (float(np.quantile(gap, q)) if len(gap) else np.nan) for q in settings.pause_quantiles}
+    pauses = {float(q): float(np.quantile(gap, q)) if len(gap) else np.nan
+              for q in settings.pause_quantiles}
     return TimingState(norms=norms, pause_seconds=pauses)
 
 
