@@ -258,9 +258,8 @@ def _emit_caught(outcomes, notes) -> None:
     """Re-raise, once each, the warnings the folds raised (workers' warnings would otherwise be lost)."""
     seen = {}
     for o in outcomes:
-        for category, message in o.caught:
-            seen.setdefault((category, message), 0)
-            seen[(category, message)] += 1
+        for key in dict.fromkeys(o.caught):  # count folds, not calls (fit and transform may both warn)
+            seen[key] = seen.get(key, 0) + 1
     for (category, message), count in list(seen.items())[:_MAX_WARNINGS]:
         warnings.warn(message, category, stacklevel=5)
         notes.append(f"Warning raised in {count} fold(s): {message}")
@@ -346,6 +345,7 @@ def results(ctx: Context, outcomes: list, cv_folds: list, pop_folds: list):
         "learning_curve": _learning_curve(ctx, cv, scores, sizes),
         "guards": guard_list,
         "notes": notes,
+        "timing": {},  # filled in by the engine once the statistics are done
         "reproducibility": _versions(ctx),
     }
     oof = _oof(ctx, cv, variants, "repeat", [o.fold.repeat for o in cv])

@@ -170,7 +170,7 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
                                 data=data, notes=list(inputs.notes) + notes, command=command)
     results, oof, oof_transfer = _assemble.results(context, outcomes, cv_folds, pop_folds)
     t3 = time.perf_counter()
-    results["timing"] = {
+    results["timing"].update({
         "prepare": t1 - t0,
         "featurize": float(sum(o.seconds["featurize"] for o in outcomes)),
         "fit": float(sum(o.seconds["fit"] for o in outcomes)),
@@ -179,7 +179,7 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
         "total": t3 - t0,
         "workers": workers,
         "model_threads": threads,
-    }
+    })
     return results, oof, oof_transfer
 
 
