@@ -75,20 +75,13 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
                             "there is nothing to learn from.")
         return self.log.for_students(self.log.students[present])
 
-    def _start_transform(self, X) -> tuple[EventLog, Aggregator]:
+    def _start_transform(self, X) -> Aggregator:
+        """Resolve X's units on the shared log itself (no copy; per-log caches serve every fold)."""
         check_is_fitted(self, "unit_")
         self._check_table(X, self.unit_, "transform")
-        missing = [c for c in self.unit_.keys() if c not in X.columns]
-        if missing:
-            raise UnitError(f"{self._where('transform')}: X lacks the key columns {missing!r} of unit "
-                            f"{self.unit_.name!r}.")
-        codes = self.log.student_codes(X[self.unit_.student], missing=self.missing_students,
-                                       where=self._where("transform"))
-        present = np.unique(codes[codes >= 0])
-        sub = self.log.for_students(self.log.students[present]) if len(present) else self.log
-        index = self.unit_.resolve(sub, X, missing_students=self.missing_students,
+        index = self.unit_.resolve(self.log, X, missing_students=self.missing_students,
                                    where=self._where("transform"))
-        return sub, Aggregator(index, sub.values("time"))
+        return Aggregator(index, self.log.values("time"))
 
     def get_feature_names_out(self, input_features=None) -> np.ndarray:
         check_is_fitted(self, "feature_names_out_")

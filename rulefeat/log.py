@@ -221,7 +221,7 @@ class EventLog:
         table can be edited and turned into a new log.
         """
         skip = () if derived else self.derived_fields()
-        cols = {name: self.decoded(name).to_numpy() for name in self._fields if name not in skip}
+        cols = {name: self.decoded(name).array for name in self._fields if name not in skip}
         return _frame.frame_from_arrays(cols, index=pd.Index(self._row, name="input_row"))
 
     def summary(self) -> dict:
@@ -265,6 +265,9 @@ class EventLog:
                 raise UnitError(f"{what}: the log's times are numbers of seconds, so {what} must be numbers "
                                 f"too. Got dtype {series.dtype}.")
             return _frame.to_float(series) * _frame.TIME_UNITS[self._settings["time_unit"]]
+        if _frame.is_numeric(series):
+            raise UnitError(f"{what}: the log's times are datetimes, so {what} must be datetimes or ISO 8601 "
+                            f"text too, not numbers (dtype {series.dtype}).")
         parsed = series if _frame.is_datetime(series) else _frame.parse_datetimes(series)
         if not _frame.is_datetime(parsed):
             raise UnitError(f"{what}: could not read these values as datetimes (dtype {series.dtype}).")
@@ -292,6 +295,21 @@ class EventLog:
                 value.flags.writeable = False
             self._cache[key] = value
         return self._cache[key]
+
+    def time_ranks(self) -> tuple[np.ndarray, np.ndarray]:
+        """(sorted distinct times, rank of every event's time among them), computed once per log.
+
+        ``student * (len(unique) + 1) + rank`` is an exact integer key that is sorted in log
+        order, so one ``searchsorted`` finds time boundaries inside every student at once.
+        """
+        def compute():
+            time = self._fields["time"]
+            unique = np.unique(time)
+            rank = np.searchsorted(unique, time).astype(np.int64)
+            for arr in (unique, rank):
+                arr.flags.writeable = False
+            return unique, rank
+        return self.cached(("time-ranks",), compute)
 
     def for_students(self, students: Iterable) -> EventLog:
         """A log holding only the events of ``students`` (labels), sharing categories with this one."""

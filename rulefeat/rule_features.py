@@ -109,6 +109,7 @@ class RuleFeatures(UnitTransformer):
         program = ruleset.compile(self.log, min_count=int(self.min_count))
         program.fit(self._training_log(X))
         self.program_ = program
+        self._fired_cache = None
         self.selected_ = self._selected(ruleset)
         self.feature_names_out_ = [f"{name}__{summary}" for name in self.selected_
                                    for summary in program.report[name]]
@@ -124,10 +125,26 @@ class RuleFeatures(UnitTransformer):
                                      f"set.{did_you_mean(name, names)} Rules: {names!r}.")
         return [n for n in names if n in set(self.select)]
 
+    def _fired(self) -> dict:
+        """Per-event firings on the whole log, computed once per fitted state and reused.
+
+        A rule's value at an event depends only on that student's events and the
+        fitted norms (contract 3), so evaluating the whole log once serves every
+        later ``transform`` (the training and the test rows of a fold alike).
+        """
+        if getattr(self, "_fired_cache", None) is None or self._fired_cache[0] != self.log.token:
+            self._fired_cache = (self.log.token, self.program_.evaluate(self.log))
+        return self._fired_cache[1]
+
+    def __getstate__(self) -> dict:
+        state = super().__getstate__()
+        state.pop("_fired_cache", None)  # recomputed on demand; keeps pickles small
+        return state
+
     def transform(self, X: pd.DataFrame) -> pd.DataFrame:
         """One row per row of ``X``: the selected rules' summaries over that unit's events."""
-        sub, agg = self._start_transform(X)
-        fired = self.program_.evaluate(sub)
+        agg = self._start_transform(X)
+        fired = self._fired()
         columns = {}
         for name in self.selected_:
             table = _summaries(agg, np.asarray(fired[name], dtype=bool))

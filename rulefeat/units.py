@@ -276,11 +276,9 @@ def _time_search(log: EventLog, students, times, side) -> np.ndarray:
 
 
 def _time_keys(log: EventLog):
-    time = log.values("time")
-    unique_times = np.unique(time)
+    unique_times, rank = log.time_ranks()
     width = len(unique_times) + 1
-    keys = log.values("student").astype(np.int64) * width + np.searchsorted(unique_times, time)
-    return unique_times, keys, width
+    return unique_times, log.values("student").astype(np.int64) * width + rank, width
 
 
 def _make_index(log, starts, ends, order, students, start_time) -> UnitIndex:
