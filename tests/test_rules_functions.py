@@ -165,6 +165,13 @@ def test_count_recent_seconds_excludes_ties_after_current_event():
     assert vals("count_recent(action == 'attempt', seconds=5s)", log=log) == [1, 2, 3, 4]
 
 
+def test_category_field_without_labels():
+    # Regression (found by the reference test): comparing with a field that has no labels at all.
+    log = EventLog(RAW.assign(tag=pd.Series([None] * 11, dtype=object)))
+    assert vals("step == tag", log=log) == [None] * 11
+    assert vals("missing(tag) and first(within='student')", log=log) == [T] + [F] * 6 + [T] + [F] * 3
+
+
 def test_norms_with_no_training_values_are_missing():
     got = vals("typical(duration, among=action == 'hint' and action == 'attempt')")
     assert got == [None] * 11

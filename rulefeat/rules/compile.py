@@ -115,8 +115,8 @@ def _codes(ev: Evaluator, node: Node, field: str) -> np.ndarray:
     codes = ev.value(node)
     if t.field == field:
         return codes
-    translate = ev.program._translation(t.field, field)
-    return np.where(codes >= 0, translate[np.maximum(codes, 0)], -1)
+    translate = ev.program._translation(t.field, field)  # ends with -1, the slot for missing codes
+    return translate[np.where(codes >= 0, codes, len(translate) - 1)]
 
 
 def _binary(ev: Evaluator, node: Binary) -> np.ndarray:
@@ -232,8 +232,8 @@ class Program:
         key = (source, target)
         if key not in self._label_cache:
             labels = self._labels(target)
-            self._label_cache[key] = np.array([labels.get(str(lbl), -2) for lbl in self._categories[source]],
-                                              dtype=np.int64)
+            codes = [labels.get(str(lbl), -2) for lbl in self._categories[source]]
+            self._label_cache[key] = np.array([*codes, -1], dtype=np.int64)
         return self._label_cache[key]
 
     def _closure(self, name: str) -> list:
