@@ -33,8 +33,9 @@ class Node:
 
     def children(self) -> list[Node]:
         out = []
+        state = vars(self)
         for f in fields(self):  # type: ignore[arg-type]
-            value = getattr(self, f.name)
+            value = state[f.name]
             items = value if isinstance(value, tuple) else (value,)
             for item in items:
                 if isinstance(item, tuple):  # Apply's (name, value) pairs

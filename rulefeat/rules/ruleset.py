@@ -31,7 +31,7 @@ __all__ = ["Rule", "RuleSet", "SUMMARIES", "DEFAULT_REPORT"]
 SUMMARIES = ("count", "rate", "any", "longest_streak", "first_position", "first_seconds")
 DEFAULT_REPORT = ("count", "rate", "any")
 RULE_KEYS = ("means", "why", "when", "report")
-_NAME = re.compile(r"[a-z_][a-z0-9_]*")
+_NAME = re.compile(r"[a-z_][a-z0-9_]*", flags=re.ASCII)
 _MAX_NAME = 64
 
 
@@ -100,8 +100,8 @@ class Rule:
         if not self.when.strip():
             raise RuleCheckError(f"Rule {self.name!r}: empty condition; write when it fires, e.g. "
                                  "when=\"action == 'hint' and gap < 3s\".")
-        for key in ("means", "why"):
-            if not isinstance(getattr(self, key), str):
+        for key, value in (("means", self.means), ("why", self.why)):
+            if not isinstance(value, str):
                 raise RuleCheckError(f"Rule {self.name!r}: {key!r} must be a string.")
         object.__setattr__(self, "report", _report(self.name, self.report))
 
@@ -236,7 +236,8 @@ class RuleSet:
         blocks = []
         for rule in self._rules:
             lines = [f"[rules.{rule.name}]"]
-            lines += [f"{key} = {_toml_string(getattr(rule, key))}" for key in ("means", "why") if getattr(rule, key)]
+            lines += [f"{key} = {_toml_string(text)}" for key, text in (("means", rule.means), ("why", rule.why))
+                      if text]
             lines.append(f"when = {_toml_string(rule.when)}")
             lines.append(f"report = [{', '.join(_toml_string(s) for s in rule.report)}]")
             blocks.append("\n".join(lines) + "\n")
