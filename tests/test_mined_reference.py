@@ -25,6 +25,9 @@ def event_table(log: EventLog) -> pd.DataFrame:
     """The log's events in log order with labels restored, times in seconds, and pandas-derived flags."""
     f = log.to_frame().reset_index(drop=True)
     f["pos"] = np.arange(len(f))
+    for name in f.columns:  # plain labels, so groupby and map behave alike on every pandas version
+        if isinstance(f[name].dtype, pd.CategoricalDtype):
+            f[name] = f[name].astype(object).where(f[name].notna(), None)
     if pd.api.types.is_datetime64_any_dtype(f["time"]):
         f["time"] = (f["time"] - f["time"].min()).dt.total_seconds()
     f["correct"] = f["correct"].astype("boolean").astype("Float64").to_numpy(dtype=float, na_value=np.nan)
