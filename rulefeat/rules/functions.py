@@ -109,7 +109,8 @@ def _count_recent(ev, call: Apply) -> np.ndarray:
     holds, g = _holds(ev, call.arg("cond")), ev.groups(call.arg("within"))
     if call.arg("actions") is not None:
         return kernels.count_recent_actions(holds, g, call.arg("actions"))
-    return kernels.count_recent_seconds(holds, g, ev.log.values("time"), call.arg("seconds"))
+    starts = kernels.window_starts(ev.log, call.arg("within"), call.arg("seconds"))
+    return kernels.count_recent_seconds(holds, g, starts)
 
 
 def _one_window(bound: dict) -> str | None:

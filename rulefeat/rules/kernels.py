@@ -16,7 +16,7 @@ import numpy as np
 from .operators import FALSE, TRUE, UNKNOWN
 
 __all__ = ["Groups", "groups_for", "shift", "count_before", "count_recent_actions", "count_recent_seconds",
-           "streak", "first"]
+           "window_starts", "streak", "first"]
 
 
 @dataclass(frozen=True)
@@ -94,19 +94,29 @@ def count_recent_actions(holds: np.ndarray, g: Groups, n: int) -> np.ndarray:
     return _numbers(cs0[k + 1] - cs0[lo], g)
 
 
-def count_recent_seconds(holds: np.ndarray, g: Groups, time: np.ndarray, seconds: float) -> np.ndarray:
-    """Events where ``holds`` among the group's events with time >= t - seconds, up to the current one."""
+def window_starts(log, scope: str, seconds: float) -> np.ndarray:
+    """For each sorted event, the sorted index where its trailing ``seconds`` window starts (cached per log)."""
+    def compute() -> np.ndarray:
+        g = groups_for(log, scope)
+        t = log.values("time")[g.order]
+        # Times never decrease inside a group (the log is sorted by student and time), so the integer key
+        # (group, rank of time) is sorted and one searchsorted finds each window's first event.
+        uniq = np.unique(t)
+        width = len(uniq) + 1
+        key = np.where(g.valid, g.group * width + np.searchsorted(uniq, t), -1)
+        query = g.group * width + np.searchsorted(uniq, t - seconds, side="left")
+        return np.minimum(np.searchsorted(key, query, side="left"), np.arange(len(t)))
+    return log.cached(("rulefeat.rules", "window", scope, float(seconds)), compute)
+
+
+def count_recent_seconds(holds: np.ndarray, g: Groups, starts: np.ndarray) -> np.ndarray:
+    """Events where ``holds`` among the group's events with time >= t - seconds, up to the current one.
+
+    ``starts`` comes from :func:`window_starts` for the same scope and window.
+    """
     _, cs0 = _sorted_counts(holds, g)
-    t = time[g.order]
-    k = np.arange(len(t))
-    # Times never decrease inside a group (the log is sorted by student and time), so the integer key
-    # (group, rank of time) is sorted and one searchsorted finds each window's first event.
-    uniq = np.unique(t)
-    width = len(uniq) + 1
-    key = np.where(g.valid, g.group * width + np.searchsorted(uniq, t), -1)
-    query = g.group * width + np.searchsorted(uniq, t - seconds, side="left")
-    lo = np.searchsorted(key, query, side="left")
-    return _numbers(cs0[k + 1] - cs0[np.minimum(lo, k)], g)
+    k = np.arange(len(g.order))
+    return _numbers(cs0[k + 1] - cs0[starts], g)
 
 
 def streak(holds: np.ndarray, g: Groups) -> np.ndarray:
