@@ -106,3 +106,13 @@ def test_rule_package_never_reaches_python_evaluation():
             if CALLS.search(code) or MODULES.search(code):
                 offenders.append(f"{path.name}:{number}: {line.strip()}")
     assert offenders == []
+
+
+@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.one_of(st.text(max_size=120), st.text(max_size=60).map(lambda t: f"[rules.x]\nwhen = {t!r}"),
+                 st.text(max_size=20).map(lambda t: t + ".toml")))
+def test_arbitrary_rules_files_raise_only_library_errors(text):
+    try:
+        RuleSet.from_toml(text)
+    except RulefeatError:
+        pass

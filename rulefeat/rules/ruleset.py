@@ -258,7 +258,7 @@ def _read_source(source) -> str:
                               f"{type(source).__name__}.")
     try:
         return Path(source).read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
+    except (OSError, ValueError) as exc:  # ValueError: undecodable bytes or a NUL in the path
         raise RuleSyntaxError(f"RuleSet.from_toml: cannot read the rules file {str(source)!r}: {exc}.") from None
 
 
