@@ -3,6 +3,7 @@
 import json
 import warnings
 
+import joblib
 import numpy as np
 import pandas as pd
 import pytest
@@ -338,6 +339,32 @@ def test_fold_warnings_are_raised_once_and_noted(sim):
         res, _, _ = compute_incremental_value(log, X, y, STATELESS_RULES, model=lr(), mined=Noisy(), **LIGHT)
     assert sum("stand-in" in str(w.message) for w in caught) == 1
     assert "Warning raised in 5 fold(s): stand-in transformer warns in every fold" in res["notes"]
+
+
+def test_joblib_parallel_config_applies(sim):
+    _, log, X, y = sim
+    kw = dict(model=lr(), mined=FAST, cv=3, random_state=2, **LIGHT)
+    plain, oof_plain, _ = compute_incremental_value(log, X, y, STATELESS_RULES, **kw)
+    with joblib.parallel_config(backend="threading"):
+        threaded, oof_threaded, _ = compute_incremental_value(log, X, y, STATELESS_RULES, n_jobs=2, **kw)
+    assert plain["comparisons"] == threaded["comparisons"]
+    pd.testing.assert_frame_equal(oof_plain, oof_threaded)
+
+
+def test_precomputed_transfer_with_given_populations():
+    rng = np.random.default_rng(5)
+    students = np.repeat([f"s{i:02d}" for i in range(30)], 6)
+    school = np.repeat(np.array(["A", "B", "C"])[np.arange(30) % 3], 6)
+    y = (rng.random(180) < 0.35).astype(float)
+    mined = pd.DataFrame({"m": y + rng.normal(0, 1.0, 180)})
+    rules = pd.DataFrame({"r__rate": y + rng.normal(0, 0.5, 180), "r__any": rng.random(180)})
+    res, _, oof_t = compute_incremental_value_precomputed(mined, rules, y, students, population=school,
+                                                          model=lr(), random_state=0, n_boot=50, ablation=True,
+                                                          learning_curve=None)
+    assert res["transfer"]["available"] and [d["population"] for d in res["transfer"]["deltas"]] == ["A", "B", "C"]
+    assert set(oof_t["population"]) == {"A", "B", "C"} and len(oof_t) == 180
+    assert [r["rule"] for r in res["per_rule"]] == ["r"] and res["rules"][0]["report"] == ["rate", "any"]
+    assert res["variants"]["combined"]["pooled"]["auc"] > res["variants"]["mined"]["pooled"]["auc"]
 
 
 def test_progress_bar_on_stderr(sim, capsys):

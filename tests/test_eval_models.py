@@ -5,7 +5,7 @@ import pytest
 
 from rulefeat.errors import EvaluationError
 from rulefeat.evaluate import default_model, thread_budget
-from rulefeat.evaluate.models import available_cores
+from rulefeat.evaluate.models import SMALL_TRAINING_SET, available_cores, model_threads
 
 
 @pytest.mark.parametrize(("n_jobs", "n_tasks", "cores", "expected"), [
@@ -63,3 +63,9 @@ def test_default_model_bad_values():
         default_model("clasification")
     with pytest.raises(EvaluationError, match="'n_threads' must be a positive integer"):
         default_model("classification", n_threads=0)
+
+
+def test_small_training_sets_get_one_model_thread():
+    assert model_threads(2, SMALL_TRAINING_SET) == 2
+    assert model_threads(2, SMALL_TRAINING_SET - 1) == 1
+    assert model_threads(1, 10 * SMALL_TRAINING_SET) == 1

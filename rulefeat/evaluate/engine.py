@@ -21,7 +21,7 @@ from ..errors import EvaluationError
 from . import _assemble
 from ._inputs import WHERE, prepare, prepare_precomputed
 from ._runner import Job, PrecomputedSource, Task, TransformerSource, run_all
-from .models import available_cores, default_model, thread_budget
+from .models import available_cores, default_model, model_threads, thread_budget
 from .splits import check_splitter, population_folds, student_folds
 
 __all__ = ["incremental_value", "incremental_value_precomputed", "make_detector"]
@@ -158,7 +158,8 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
     tasks, cv_folds, pop_folds = _tasks(inputs, settings, seeds)
     workers, threads = thread_budget(n_jobs, len(tasks))
     if model is None:
-        model = default_model(inputs.task, seeds.model, threads)
+        n_train = np.mean([len(t.fold.train) for t in tasks])
+        model = default_model(inputs.task, seeds.model, model_threads(threads, n_train))
     model = _check_model(model, inputs.task)
     job = Job(source, inputs.y, inputs.students, model, inputs.task, settings["ablation"], settings["fractions"],
               threads if workers > 1 else None)
@@ -177,8 +178,6 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
         "folds": t2 - t1,
         "statistics": t3 - t2,
         "total": t3 - t0,
-        "workers": workers,
-        "model_threads": threads,
     })
     return results, oof, oof_transfer
 
