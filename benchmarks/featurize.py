@@ -78,23 +78,32 @@ def hand_vectorized(frame: pd.DataFrame, X: pd.DataFrame) -> pd.DataFrame:
     return window_counts(frame, X, fired)
 
 
+def exact_keys(group, t, queries):
+    """Integer keys (group, rank of time) for events and for query times: exact, unlike group * big + t."""
+    unique = np.unique(t)
+    width = len(unique) + 1
+    return group * width + np.searchsorted(unique, t), [g * width + np.searchsorted(unique, q) for g, q in queries]
+
+
 def recent_count(group, t, flag, seconds):
     """Events with ``flag`` in the same group within [t - seconds, t], up to and including each event."""
     order = np.lexsort((np.arange(len(t)), group))
-    key = group[order] * 1e9 + t[order]
+    g, ts = group[order], t[order]
+    key, (query,) = exact_keys(g, ts, [(g, ts - seconds)])
     csum = np.concatenate([[0], np.cumsum(flag[order])])
-    first = np.searchsorted(key, key - seconds, side="left")
+    first = np.searchsorted(key, query, side="left")
     out = np.empty(len(t))
     out[order] = csum[np.arange(1, len(t) + 1)] - csum[first]
     return out
 
 
 def window_counts(frame, X, fired) -> pd.DataFrame:
-    codes = frame["student"].cat.codes.to_numpy().astype(np.float64)
-    key = codes * 1e9 + frame["time"].to_numpy()
-    xcodes = frame["student"].cat.categories.get_indexer(X["student"]).astype(np.float64)
-    lo = np.searchsorted(key, xcodes * 1e9 + X["start"].to_numpy(), side="left")
-    hi = np.searchsorted(key, xcodes * 1e9 + X["end"].to_numpy(), side="left")
+    codes = frame["student"].cat.codes.to_numpy().astype(np.int64)
+    xcodes = frame["student"].cat.categories.get_indexer(X["student"]).astype(np.int64)
+    key, (start, end) = exact_keys(codes, frame["time"].to_numpy(),
+                                   [(xcodes, X["start"].to_numpy()), (xcodes, X["end"].to_numpy())])
+    lo = np.searchsorted(key, start, side="left")
+    hi = np.searchsorted(key, end, side="left")
     out = {}
     for name, mask in fired.items():
         csum = np.concatenate([[0], np.cumsum(mask)])

@@ -304,8 +304,8 @@ class EventLog:
         """
         def compute():
             time = self._fields["time"]
-            unique = np.unique(time)
-            rank = np.searchsorted(unique, time).astype(np.int64)
+            unique, rank = np.unique(time, return_inverse=True)
+            rank = rank.astype(np.int64).reshape(-1)
             for arr in (unique, rank):
                 arr.flags.writeable = False
             return unique, rank

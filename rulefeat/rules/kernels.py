@@ -101,9 +101,9 @@ def window_starts(log, scope: str, seconds: float) -> np.ndarray:
         t = log.values("time")[g.order]
         # Times never decrease inside a group (the log is sorted by student and time), so the integer key
         # (group, rank of time) is sorted and one searchsorted finds each window's first event.
-        uniq = np.unique(t)
+        uniq, rank = log.time_ranks()
         width = len(uniq) + 1
-        key = np.where(g.valid, g.group * width + np.searchsorted(uniq, t), -1)
+        key = np.where(g.valid, g.group * width + rank[g.order], -1)
         query = g.group * width + np.searchsorted(uniq, t - seconds, side="left")
         return np.minimum(np.searchsorted(key, query, side="left"), np.arange(len(t)))
     return log.cached(("rulefeat.rules", "window", scope, float(seconds)), compute)
