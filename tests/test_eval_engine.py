@@ -411,6 +411,17 @@ def test_bad_inputs(sim, kwargs, match):
         compute_incremental_value(**args)
 
 
+def test_ready_made_transformers_must_read_the_same_log(sim):
+    data, log, X, y = sim
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", LogRepairWarning)
+        other = EventLog(data.events)
+    with pytest.raises(EvaluationError, match="the mined transformer reads a different EventLog"):
+        compute_incremental_value(log, X, y, STATELESS_RULES, model=lr(), mined=LogFeatures(other), **LIGHT)
+    with pytest.raises(EvaluationError, match="the rules transformer reads a different EventLog"):
+        compute_incremental_value(log, X, y, RuleFeatures(STATELESS_RULES, other), model=lr(), mined=FAST, **LIGHT)
+
+
 def test_students_missing_from_the_log_are_named(sim):
     _, log, X, y = sim
     units = X.assign(student=X["student"].astype(str))

@@ -44,7 +44,7 @@ def test_default_model_preset():
     assert params["deterministic"] is True and params["force_row_wise"] is True
     assert params["n_jobs"] == 2 and params["random_state"] == 7 and params["verbose"] == -1
     assert (params["n_estimators"], params["learning_rate"], params["num_leaves"],
-            params["min_child_samples"]) == (200, 0.05, 15, 20)
+            params["min_child_samples"], params["max_bin"]) == (200, 0.05, 15, 20, 63)
     reg = default_model("regression", random_state=None, n_threads=1)
     assert type(reg).__name__ == "LGBMRegressor" and reg.get_params()["random_state"] == 0
 

@@ -10,7 +10,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from . import compare, guards
+from . import compare, guards, stats
+from ._inputs import population_summary
 from .metrics import PRIMARY, metric_names, score_predictions
 
 __all__ = ["Context", "results", "hash_text", "MIN_TEST_STUDENTS", "clean"]
@@ -168,8 +169,7 @@ def _learning_curve(ctx, cv, scores, sizes) -> list:
         valid = d[~np.isnan(d)]
         low = high = float("nan")
         if len(valid) >= 2:
-            from .stats import corrected_resampled_ttest
-            r = corrected_resampled_ttest(valid, f * sizes[0], sizes[1], alpha=compare.ALPHA)
+            r = stats.corrected_resampled_ttest(valid, f * sizes[0], sizes[1], alpha=compare.ALPHA)
             low, high = r.ci_low, r.ci_high
         rows.append({"fraction": f, "mined": _summary_stats(mined)["mean"],
                      "combined": _summary_stats(combined)["mean"],
@@ -292,8 +292,6 @@ def _comparisons(ctx, scores, sizes, pooled, pooled_values, notes) -> list:
 
 def _data(ctx) -> dict:
     inputs = ctx.inputs
-    from ._inputs import population_summary
-
     return {"n_units": inputs.n_units, "n_students": int(len(np.unique(inputs.students))),
             "positive_rate": float(inputs.y.mean()) if inputs.task == "classification" else None,
             "n_events": ctx.data["n_events"], "log": ctx.data["log"], "populations": population_summary(inputs)}

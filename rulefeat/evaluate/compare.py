@@ -8,8 +8,8 @@ How each number is made (also written into every evaluation's notes):
   *students* with replacement (a student's units stay together).  AUC takes the fast vectorised path of
   :func:`~rulefeat.evaluate.stats.grouped_bootstrap_auc_difference`; metrics that are sums over rows (kappa's
   confusion counts, log loss, Brier, R², RMSE) are bootstrapped here from per-student sums times a matrix of
-  student multiplicities, and average precision from cumulative sums of the multiplicity-weighted rows sorted by
-  score — all vectorised over blocks of replicates.  Replicates without both classes (classification) or with a
+  student multiplicities, and average precision from per-student tallies of each distinct score like the AUC
+  path — all vectorised over blocks of replicates.  Replicates without both classes (classification) or with a
   constant target (R²) are dropped.
 * ``p_value`` (the headline test): the corrected resampled t-test (Nadeau & Bengio 2003) on the per-fold
   differences of all repeats, ``n_train`` / ``n_test`` the mean fold sizes in units.  With
@@ -25,6 +25,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import sparse
 from scipy import stats as sps
 
 from ..errors import EvaluationError
@@ -148,38 +149,37 @@ def _summed_bootstrap(metric, y, groups, a, b, n_boot, rng) -> tuple[float, np.n
     return estimate, np.concatenate(reps)
 
 
-class _Ranked:
-    """One score's rows sorted high to low, with the last row of each distinct score (for average precision)."""
-
-    def __init__(self, y: np.ndarray, score: np.ndarray, codes: np.ndarray):
-        order = np.argsort(-score, kind="stable")
-        s = score[order]
-        self.y, self.codes = y[order].astype(bool), codes[order]
-        self.last = np.flatnonzero(np.r_[s[1:] != s[:-1], True])
-
-    def average_precision(self, counts: np.ndarray) -> np.ndarray:
-        """AP of every replicate (rows of ``counts``, multiplicities per student); NaN without positives."""
-        w = counts[:, self.codes]
-        tp = np.cumsum(w * self.y, axis=1)[:, self.last]
-        fp = np.cumsum(w * ~self.y, axis=1)[:, self.last]
-        with np.errstate(invalid="ignore", divide="ignore"):
-            precision = np.where(tp + fp > 0, tp / (tp + fp), 0.0)
-            gain = np.diff(tp / tp[:, -1:], axis=1, prepend=0.0)
-            return np.where(tp[:, -1] > 0, np.sum(gain * precision, axis=1), np.nan)
+def _ap_from_tallies(pos: np.ndarray, neg: np.ndarray) -> np.ndarray:
+    """Average precision per column from positive / negative weights per distinct score (rows ascending)."""
+    tp, fp = np.cumsum(pos[::-1], axis=0), np.cumsum(neg[::-1], axis=0)  # thresholds from high to low
+    with np.errstate(invalid="ignore", divide="ignore"):
+        precision = np.where(tp + fp > 0, tp / (tp + fp), 0.0)
+        gain = np.diff(tp / tp[-1:], axis=0, prepend=0.0)
+        return np.where(tp[-1] > 0, np.sum(gain * precision, axis=0), np.nan)
 
 
 def _ap_bootstrap(y, groups, a, b, n_boot, rng) -> tuple[float, np.ndarray]:
-    """Average precision's difference over student-bootstrap replicates, vectorised per block of replicates."""
+    """Average precision's difference over student-bootstrap replicates.
+
+    Like the fast AUC path: per (distinct score, student) tallies of positives and negatives, times the
+    (students x replicates) multiplicities, give every replicate's weights per distinct score at once.
+    """
     _, codes = np.unique(groups, return_inverse=True)
     n_groups = int(codes.max()) + 1
-    ranked = [_Ranked(y, s, codes) for s in (a, b)]
+    yb = y.astype(bool)
+    tallies = []
+    for score in (a, b):
+        distinct, ties = np.unique(score, return_inverse=True)
+        shape = (len(distinct), n_groups)
+        tallies.append([sparse.csr_array((cls.astype(float), (ties, codes)), shape=shape) for cls in (yb, ~yb)])
     estimate = weighted_average_precision(y, a) - weighted_average_precision(y, b)
     reps = []
     for counts in _multiplicities(n_groups, n_boot, rng, n_rows=len(y)):
-        has_both = (counts @ np.bincount(codes, weights=y, minlength=n_groups) > 0) & (
-            counts @ np.bincount(codes, weights=1 - y, minlength=n_groups) > 0)
-        reps.append(np.where(has_both, ranked[0].average_precision(counts) - ranked[1].average_precision(counts),
-                             np.nan))
+        weights = counts.T
+        ap = [_ap_from_tallies(pos @ weights, neg @ weights) for pos, neg in tallies]
+        has_both = (counts @ np.bincount(codes, weights=yb, minlength=n_groups) > 0) & (
+            counts @ np.bincount(codes, weights=~yb, minlength=n_groups) > 0)
+        reps.append(np.where(has_both, ap[0] - ap[1], np.nan))
     return float(estimate), np.concatenate(reps)
 
 

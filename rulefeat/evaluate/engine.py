@@ -104,14 +104,21 @@ def _ruleset(rules):
     return as_ruleset(rules)
 
 
+def _same_log(transformer, log, name: str):
+    """A transformer given ready-made must read the evaluation's log, or its features describe other events."""
+    own = getattr(transformer, "log", log)
+    if own is not log:
+        raise EvaluationError(f"{WHERE}: the {name} transformer reads a different EventLog than the 'log' argument "
+                              f"({own!r} vs {log!r}). Build it with log=<the same log>.")
+    return transformer
+
+
 def _rules_transformer(rules, log, unit):
-    """The rule-features transformer and the rule set it computes."""
+    """The rule-features transformer (a RuleFeatures or a transformer with a ``rules`` attribute) and its rules."""
     from ..rule_features import RuleFeatures
 
-    if isinstance(rules, RuleFeatures):
-        return rules, _ruleset(rules.rules)
     if hasattr(rules, "fit") and hasattr(rules, "transform"):
-        return rules, _ruleset(rules.rules)
+        return _same_log(rules, log, "rules"), _ruleset(rules.rules)
     ruleset = _ruleset(rules)
     return RuleFeatures(rules=ruleset, log=log, unit=unit), ruleset
 
@@ -130,7 +137,7 @@ def _mined_transformer(mined, log, unit, seed: int):
                                       f"{key!r}.{did_you_mean(str(key), allowed)} Allowed: {allowed!r}.")
         return LogFeatures(log=log, unit=unit, **{"random_state": seed, **mined})
     if hasattr(mined, "fit") and hasattr(mined, "transform") and hasattr(mined, "get_params"):
-        return mined
+        return _same_log(mined, log, "mined")
     raise EvaluationError(f"The 'mined' parameter of {WHERE} must be None, a dict of LogFeatures parameters, or a "
                           f"scikit-learn transformer (e.g. LogFeatures(...)). Got {type(mined).__name__}.")
 
@@ -246,8 +253,10 @@ def incremental_value(log, units, y, rules, model=None, cv=5, repeats=1, populat
     mined : dict or transformer, optional
         LogFeatures parameters (``{"families": [...], "max_features": 50}``) or a transformer instance.
     n_jobs : int, optional
-        Parallel fold workers (see :func:`~rulefeat.evaluate.thread_budget`); folds run through
-        ``joblib.Parallel``, so ``joblib.parallel_config`` (e.g. a dask backend) applies.
+        Parallel fold workers (see :func:`~rulefeat.evaluate.thread_budget`): None runs the folds one after
+        another with every core for the model, -1 one worker per core; folds run through ``joblib.Parallel``,
+        so ``joblib.parallel_config`` (e.g. a dask backend) applies.  The default model uses one thread when
+        folds train on fewer than 10,000 units (see :func:`~rulefeat.evaluate.models.model_threads`).
     random_state : int, optional
         Seeds splits, model, features, bootstrap and learning-curve subsamples; the same value gives the same
         results dict (apart from ``timing``).

@@ -19,12 +19,14 @@ __all__ = ["default_model", "thread_budget", "model_threads", "available_cores",
 TASKS = ("classification", "regression")
 
 # A modest boosted-tree preset: enough capacity for a few hundred features and tens of thousands of units, small
-# enough for dozens of fits per evaluation.  Common practice, no source.
+# enough for dozens of fits per evaluation.  Common practice, no source.  63 histogram bins instead of LightGBM's
+# 255 make each fit about 40 % faster (measured on 16,000 x 75 rows) and are plenty for counts and rates.
 _PRESET = {
     "n_estimators": 200,
     "learning_rate": 0.05,
     "num_leaves": 15,
     "min_child_samples": 20,
+    "max_bin": 63,
     "subsample": 1.0,
     "colsample_bytree": 1.0,
 }
@@ -59,7 +61,7 @@ def default_model(task: str, random_state: int | None = None, n_threads: int = 1
     Returns
     -------
     lightgbm.LGBMClassifier or lightgbm.LGBMRegressor
-        200 trees, learning rate 0.05, 15 leaves, at least 20 units per leaf, ``deterministic=True`` and
+        200 trees, learning rate 0.05, 15 leaves, at least 20 units per leaf, 63 bins, ``deterministic=True`` and
         ``force_row_wise=True`` (the same seed and data give bit-identical trees), ``verbose=-1``.
 
     Examples
