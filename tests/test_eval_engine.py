@@ -411,6 +411,16 @@ def test_bad_inputs(sim, kwargs, match):
         compute_incremental_value(**args)
 
 
+def test_rules_without_features_get_no_ablation_rows(sim):
+    _, log, X, y = sim
+    rules = RuleFeatures(STATELESS_RULES, log, select=["guess_after_error"])
+    res, oof, _ = compute_incremental_value(log, X, y, rules, model=lr(), mined=FAST,
+                                            **{**LIGHT, "ablation": True})
+    assert [r["rule"] for r in res["per_rule"]] == ["guess_after_error"]
+    assert [r["name"] for r in res["rules"]] == ["skimmed_hint", "guess_after_error"]
+    assert "plus:guess_after_error" in oof.columns and "plus:skimmed_hint" not in oof.columns
+
+
 def test_ready_made_transformers_must_read_the_same_log(sim):
     data, log, X, y = sim
     with warnings.catch_warnings():

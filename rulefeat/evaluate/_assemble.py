@@ -60,9 +60,15 @@ def clean(value):
     return value
 
 
-def _variants(ctx: Context) -> list[str]:
-    extra = [f"{kind}:{r}" for r in ctx.ablation_rules for kind in ("without", "plus")] if ctx.settings["ablation"] else []
-    return [*MAIN_VARIANTS, *extra]
+def _ablation_rules(ctx: Context, cv) -> list[str]:
+    """Rules that produced features (helper rules with an empty report, or rules left out by select, did not)."""
+    if not ctx.settings["ablation"]:
+        return []
+    return [r for r in ctx.ablation_rules if cv[0].counts["per_rule"].get(r, 0) > 0]
+
+
+def _variants(rules: list[str]) -> list[str]:
+    return [*MAIN_VARIANTS, *(f"{kind}:{r}" for r in rules for kind in ("without", "plus"))]
 
 
 def _fold_problem(ctx: Context, o, where: str) -> str | None:
@@ -311,14 +317,15 @@ def results(ctx: Context, outcomes: list, cv_folds: list, pop_folds: list):
     notes = list(ctx.notes)
     cv = [o for o in outcomes if o.kind == "cv"]
     tr = [o for o in outcomes if o.kind == "transfer"]
-    variants = _variants(ctx)
+    ablation = _ablation_rules(ctx, cv)
+    variants = _variants(ablation)
     task = ctx.inputs.task
     fold_rows, scores = _fold_rows(ctx, cv, variants, notes)
     pooled = _pooled(ctx, cv, variants)
     pooled_values = {v: _pooled_scores(ctx, pooled, v) for v in variants}
     sizes = _sizes(cv)
     comparisons = _comparisons(ctx, scores, sizes, pooled, pooled_values, notes)
-    per_rule = (compare.per_rule_rows(ctx.ablation_rules, PRIMARY[task], scores, sizes, pooled,
+    per_rule = (compare.per_rule_rows(ablation, PRIMARY[task], scores, sizes, pooled,
                                       ctx.settings["n_boot"], ctx.seeds.boot, ctx.settings["alternative"], notes)
                 if ctx.settings["ablation"] else [])
     transfer, oof_transfer = _transfer(ctx, tr, pop_folds, notes)

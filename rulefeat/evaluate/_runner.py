@@ -248,7 +248,8 @@ def run_task(job: Job, task: Task) -> Outcome:
         f"the training part of {where} has only one class, so no model could be fitted"]
     return Outcome(task.kind, fold, int(len(np.unique(job.groups[fold.train]))),
                    int(len(np.unique(job.groups[fold.test]))), preds, thresholds, curve, findings,
-                   {"mined": int(len(ff.mined)), "rules": int(len(variants["rules"]))}, issues,
+                   {"mined": int(len(ff.mined)), "rules": int(len(variants["rules"])),
+                    "per_rule": {r: int(len(c)) for r, c in ff.rules.items()}}, issues,
                    [(w.category, str(w.message)) for w in caught],
                    {"featurize": t1 - t0, "fit": time.perf_counter() - t1})
 

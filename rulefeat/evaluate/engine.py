@@ -210,8 +210,7 @@ def compute_incremental_value(log, units, y, rules, model=None, cv=5, repeats=1,
     info = _rule_info(ruleset)
     source = TransformerSource(inputs.X, mined_tf, rules_tf, list(ruleset.names))
     data = {"n_events": len(log), "log": log.summary()}
-    ablation_rules = [r["name"] for r in info if r["report"]]
-    return _evaluate(inputs, source, info, ruleset.text_hash(), ablation_rules, model, settings, n_jobs, seeds,
+    return _evaluate(inputs, source, info, ruleset.text_hash(), list(ruleset.names), model, settings, n_jobs, seeds,
                      data, [], command, t0)
 
 
