@@ -98,14 +98,13 @@ def window_starts(log, scope: str, seconds: float) -> np.ndarray:
     """For each sorted event, the sorted index where its trailing ``seconds`` window starts (cached per log)."""
     def compute() -> np.ndarray:
         g = groups_for(log, scope)
-        t = log.values("time")[g.order]
         # Times never decrease inside a group (the log is sorted by student and time), so the integer key
         # (group, rank of time) is sorted and one searchsorted finds each window's first event.
         uniq, rank = log.time_ranks()
         width = len(uniq) + 1
         key = np.where(g.valid, g.group * width + rank[g.order], -1)
-        query = g.group * width + np.searchsorted(uniq, t - seconds, side="left")
-        return np.minimum(np.searchsorted(key, query, side="left"), np.arange(len(t)))
+        query = g.group * width + log.shifted_time_ranks(seconds)[g.order]
+        return np.minimum(np.searchsorted(key, query, side="left"), np.arange(len(g.order)))
     return log.cached(("rulefeat.rules", "window", scope, float(seconds)), compute)
 
 
