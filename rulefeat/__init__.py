@@ -11,6 +11,7 @@ from .errors import (
     RuleSyntaxError,
     UnitError,
 )
+from .evaluate import incremental_value, make_detector
 from .log import EventLog, LogIssue, read_events
 from .log_features import LogFeatures
 from .rule_features import RuleFeatures
@@ -26,6 +27,8 @@ __all__ = [
     "RuleSet",
     "RuleFeatures",
     "LogFeatures",
+    "incremental_value",
+    "make_detector",
     "RulefeatError",
     "LogSchemaError",
     "UnitError",
