@@ -322,7 +322,7 @@ class EventLog:
     def _time_order(self):
         def compute():
             time = self._fields["time"]
-            order = np.argsort(time, kind="stable")
+            order = np.argsort(time)  # ties share a rank, so an unstable sort is enough
             ordered = time[order]
             new = np.ones(len(ordered), dtype=bool)
             new[1:] = ordered[1:] != ordered[:-1]

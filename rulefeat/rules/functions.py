@@ -27,7 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import kernels, norms
-from .ast import BOOL, NUMBER, Apply
+from .ast import BOOL, NUMBER, Apply, Field
 from .operators import FALSE, TRUE, UNKNOWN
 
 __all__ = ["Param", "Function", "FUNCTIONS", "REQUIRED", "SCOPES"]
@@ -136,7 +136,12 @@ def _norm_inputs(ev, call: Apply) -> dict:
 
 
 def _fit_typical(ev, call: Apply, min_count: int) -> dict:
-    return norms.fit_typical(**_norm_inputs(ev, call), q=call.arg("q"), min_count=min_count)
+    inputs = _norm_inputs(ev, call)
+    field = call.arg("field")
+    # One value sort per field of the training log, shared by every typical() of that field.
+    order = ev.log.cached(("rulefeat.rules", "value-order", field.name),
+                          lambda: np.argsort(inputs["values"])) if isinstance(field, Field) else None
+    return norms.fit_typical(**inputs, q=call.arg("q"), min_count=min_count, value_order=order)
 
 
 def _fit_zscore(ev, call: Apply, min_count: int) -> dict:

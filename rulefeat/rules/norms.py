@@ -21,14 +21,17 @@ def _lerp(a: np.ndarray, b: np.ndarray, t: np.ndarray) -> np.ndarray:
     return np.where(t >= 0.5, b - diff * (1 - t), out)
 
 
-def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float) -> tuple[np.ndarray, np.ndarray]:
+def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float,
+                     by_value: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
     """(count, q-quantile) of ``values`` for every key ``0..n_keys-1``; NaN where a key has no values.
 
     Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7).
+    ``by_value`` may give ``argsort(values)`` when the caller already has it.
     """
     # Sort by value, then stably by key: lexsort's order (ties in value are interchangeable here)
     # at a fraction of its cost; small key ranges use numpy's radix sort on int16.
-    by_value = np.argsort(values)
+    if by_value is None:
+        by_value = np.argsort(values)
     small = np.int16 if n_keys < np.iinfo(np.int16).max else np.int64
     order = by_value[np.argsort(keys[by_value].astype(small), kind="stable")]
     v, k = values[order], keys[order]
@@ -70,11 +73,21 @@ def _training(values: np.ndarray, keys: np.ndarray, among: np.ndarray | None):
 
 
 def fit_typical(values: np.ndarray, keys: np.ndarray, n_keys: int, *, q: float, min_count: int,
-                among: np.ndarray | None = None) -> dict:
-    """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values."""
+                among: np.ndarray | None = None, value_order: np.ndarray | None = None) -> dict:
+    """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values.
+
+    ``value_order`` (``argsort(values)``, NaN last) lets several norms of one field share one sort.
+    """
     every, v, k = _training(values, keys, among)
     overall = float(np.quantile(every, q)) if len(every) else float("nan")
-    count, per_key = grouped_quantile(v, k, n_keys, q)
+    by_value = None
+    if value_order is not None:
+        keyed = ~np.isnan(values) & (keys >= 0)
+        if among is not None:
+            keyed &= among
+        position = np.cumsum(keyed) - 1  # index of each kept event inside v / k
+        by_value = position[value_order[keyed[value_order]]]
+    count, per_key = grouped_quantile(v, k, n_keys, q, by_value=by_value)
     value = np.where(count >= min_count, per_key, overall)
     return {"count": count, "value": value, "overall": overall}
 
