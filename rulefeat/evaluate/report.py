@@ -369,6 +369,12 @@ class IncrementalValueReport:
             self._oof_transfer.to_csv(folder / "oof_transfer.csv", index=False)
         return folder
 
+    def save_html(self, path: str | Path, diagnostics=None) -> Path:
+        """Write one self-contained HTML page (figures embedded); see :func:`rulefeat.evaluate.html.save_html`."""
+        from .html import save_html
+
+        return save_html(self, path, diagnostics=diagnostics)
+
     def __repr__(self) -> str:
         m = self.primary_metric
         comp = self._comparison("combined", m)
