@@ -11,7 +11,7 @@ from .errors import (
     RuleSyntaxError,
     UnitError,
 )
-from .evaluate import incremental_value, make_detector
+from .evaluate import diagnose, incremental_value, make_detector
 from .log import EventLog, LogIssue, read_events
 from .log_features import LogFeatures
 from .rule_features import RuleFeatures
@@ -29,6 +29,7 @@ __all__ = [
     "LogFeatures",
     "incremental_value",
     "make_detector",
+    "diagnose",
     "RulefeatError",
     "LogSchemaError",
     "UnitError",

@@ -5,13 +5,14 @@
 (1, 2)
 """
 
+from .diagnose import RuleDiagnostics, diagnose
 from .engine import incremental_value, incremental_value_precomputed, make_detector
 from .guards import GuardWarning
 from .metrics import METRICS
 from .models import default_model, thread_budget
 from .splits import GROUP_AWARE
 
-__all__ = ["incremental_value", "incremental_value_precomputed", "make_detector", "default_model",
+__all__ = ["diagnose", "RuleDiagnostics", "incremental_value", "incremental_value_precomputed", "make_detector", "default_model",
            "thread_budget", "GuardWarning", "METRICS", "GROUP_AWARE", "IncrementalValueReport"]
 
 
