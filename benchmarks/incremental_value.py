@@ -30,7 +30,7 @@ import pandas as pd
 
 import rulefeat
 from rulefeat.errors import LogRepairWarning
-from rulefeat.evaluate import incremental_value
+from rulefeat.evaluate import diagnose, incremental_value
 from rulefeat.evaluate.engine import demo_rules_path
 
 
@@ -53,6 +53,8 @@ def parse_args(argv=None) -> argparse.Namespace:
                                                                      "incremental_value_report)")
     p.add_argument("--full", action="store_true", help="performance run: 2,000 students x 10 windows (about "
                                                        "1M events), 5 folds, ablation, no curve or transfer")
+    p.add_argument("--no-diagnose", action="store_true", help="skip the per-rule validity diagnostics and SHAP")
+    p.add_argument("--outcomes", help="with your own data: CSV or Parquet of student outcomes (student, posttest)")
     own = p.add_argument_group("your own data")
     own.add_argument("--events", help="CSV or Parquet file of events")
     own.add_argument("--labels", help="CSV or Parquet file of units with their labels")
@@ -83,6 +85,7 @@ def load(args, clock: dict):
             log = rulefeat.read_events(args.events, columns=json.loads(args.columns) if args.columns else None)
             clock["read and build the log"] = time.perf_counter() - t0
             units = _table(args.labels)
+            outcomes = _table(args.outcomes) if args.outcomes else None
         else:
             from rulefeat.simulate import tutor_logs
 
@@ -92,8 +95,9 @@ def load(args, clock: dict):
             log = rulefeat.EventLog(data.events)
             clock["build the log"] = time.perf_counter() - t1
             units = data.windows[["student", "start", "end", "label"]]
+            outcomes = data.outcomes
     rules = Path(args.rules) if args.rules else demo_rules_path()
-    return log, units, rules
+    return log, units, rules, outcomes
 
 
 def show(report, clock: dict) -> None:
@@ -121,7 +125,7 @@ def main(argv=None) -> int:
     args = parse_args(argv)
     clock: dict = {}
     start = time.perf_counter()
-    log, units, rules = load(args, clock)
+    log, units, rules, outcomes = load(args, clock)
     print(f"{log!r}\n{len(units)} units, {units['student'].nunique()} students")
     t0 = time.perf_counter()
     report = incremental_value(
@@ -134,12 +138,27 @@ def main(argv=None) -> int:
     for stage in ("featurize", "fit"):
         clock[f"  of which {stage} (sum)"] = inner.get(stage, float("nan"))
     clock["  of which statistics"] = inner.get("statistics", float("nan"))
+    diagnostics = None
+    if not args.no_diagnose and not args.full:
+        t1 = time.perf_counter()
+        diagnostics = diagnose(log, units, args.label, rules, cv=args.folds, population=args.population,
+                               outcomes=outcomes, unit=args.unit, shap_sample=300, n_boot=args.n_boot,
+                               random_state=args.seed, n_jobs=args.n_jobs or None)
+        clock["diagnose (incl. SHAP)"] = time.perf_counter() - t1
     t1 = time.perf_counter()
     folder = report.save(args.out)
-    clock["write the report"] = time.perf_counter() - t1
+    html = report.save_html(Path(folder) / "report.html", diagnostics=diagnostics)
+    if diagnostics is not None:
+        diagnostics.save(Path(folder) / "diagnostics")
+    clock["write the reports"] = time.perf_counter() - t1
     clock["total"] = time.perf_counter() - start
     show(report, clock)
-    print(f"\nReport written to {folder}/")
+    if diagnostics is not None:
+        with pd.option_context("display.width", 160, "display.max_columns", 12, "display.precision", 3):
+            print("\nDiagnostics per rule (see the HTML report for all columns):")
+            print(diagnostics.table().iloc[:, :8].to_string(index=False))
+    print(f"\nReport written to {folder}/ (Markdown, JSON, figures)")
+    print(f"HTML report: {html}")
     return 0
 
 
