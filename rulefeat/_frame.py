@@ -28,6 +28,13 @@ def is_boolean(series: pd.Series) -> bool:
     return ptypes.is_bool_dtype(series.dtype)
 
 
+def bool_codes(series: pd.Series) -> np.ndarray:
+    """int8 1/0 with -1 for missing, from a numpy or nullable boolean column."""
+    if isinstance(series.dtype, pd.BooleanDtype):
+        return series.astype("Int8").to_numpy(dtype=np.int8, na_value=-1)
+    return series.to_numpy().astype(np.int8)
+
+
 def missing_mask(series: pd.Series) -> np.ndarray:
     return np.asarray(series.isna().to_numpy(), dtype=bool)
 
@@ -58,21 +65,24 @@ def to_float(series: pd.Series) -> np.ndarray:
 def factorize(series: pd.Series) -> tuple[np.ndarray, pd.Index]:
     """Integer codes (int32, -1 for missing) and sorted categories of a column."""
     if isinstance(series.dtype, pd.CategoricalDtype):
-        series = series.cat.remove_unused_categories()
-        cats = series.cat.categories
-        codes = series.cat.codes.to_numpy().astype(np.int32)
-        order = _sorted_order(cats)
-        if not np.array_equal(order, np.arange(len(cats))):
-            remap = np.empty(len(cats), dtype=np.int32)
-            remap[order] = np.arange(len(cats), dtype=np.int32)
-            codes = np.where(codes >= 0, remap[np.maximum(codes, 0)], -1).astype(np.int32)
-            cats = cats[order]
-        return codes, pd.Index(cats)
+        return _categorical_codes(series)
     try:
         codes, uniques = pd.factorize(series, sort=True)
     except TypeError:  # mixed, unorderable labels: order them as text
         codes, uniques = pd.factorize(series.astype("string"), sort=True)
     return codes.astype(np.int32), pd.Index(uniques)
+
+
+def _categorical_codes(series: pd.Series) -> tuple[np.ndarray, pd.Index]:
+    """Codes over the used categories only, in sorted label order; O(n) (no sort of the codes)."""
+    cats = series.cat.categories
+    codes = series.cat.codes.to_numpy()
+    used = np.bincount(codes[codes >= 0], minlength=len(cats)) > 0 if len(codes) else np.zeros(len(cats), bool)
+    kept = cats[used]
+    order = _sorted_order(kept)
+    remap = np.full(len(cats) + 1, -1, dtype=np.int32)
+    remap[np.flatnonzero(used)[order]] = np.arange(len(kept), dtype=np.int32)
+    return remap[np.where(codes >= 0, codes, len(cats))], pd.Index(kept[order])
 
 
 def _sorted_order(cats: pd.Index) -> np.ndarray:

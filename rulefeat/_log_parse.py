@@ -146,15 +146,15 @@ def parse_action(raw: pd.Series, column: str, actions: dict | None):
     missing = _frame.missing_mask(raw)
     if missing.any():
         raise _fail(column, f"{int(missing.sum())} rows have no action kind", np.flatnonzero(missing))
-    text = raw.astype("string")
+    codes, cats = _frame.factorize(raw)
+    rename = {}
     for kind, values in (actions or {}).items():
-        values = [values] if isinstance(values, str) else list(values)
-        text = text.mask(text.isin([str(v) for v in values]), str(kind))
-    codes, cats = _frame.factorize(text)
-    labels = [str(c) for c in cats]
+        for value in [values] if isinstance(values, str) else list(values):
+            rename[str(value)] = str(kind)
+    labels = [rename.get(str(c), str(c)) for c in cats]  # a loop over labels, not rows
     full = sorted(set(labels) | set(BASE_ACTIONS))
     remap = np.array([full.index(lbl) for lbl in labels], dtype=np.int32)
-    codes = remap[codes]
+    codes = remap[codes] if len(remap) else codes.astype(np.int32)
     unknown = np.isin(codes, [full.index(k) for k in full if k not in BASE_ACTIONS])
     return codes.astype(np.int32), pd.Index(full, dtype=object), unknown
 
@@ -177,8 +177,7 @@ def parse_correct(raw: pd.Series, column: str, correct_values):
         out[is_no] = 0
         return out
     if _frame.is_boolean(raw):
-        out[present] = raw[present].astype(bool).to_numpy().astype(np.int8)
-        return out
+        return _frame.bool_codes(raw)
     if _frame.is_numeric(raw):
         num = _frame.to_float(raw)
         bad = present & ~np.isin(num, (0.0, 1.0))
@@ -224,10 +223,7 @@ def parse_duration(raw: pd.Series, column: str):
 def parse_extra(raw: pd.Series):
     """Return (array, kind, categories) for a column the log keeps as it is."""
     if _frame.is_boolean(raw):
-        out = np.full(len(raw), -1, dtype=np.int8)
-        present = ~_frame.missing_mask(raw)
-        out[present] = raw[present].astype(bool).to_numpy().astype(np.int8)
-        return out, "bool", None
+        return _frame.bool_codes(raw), "bool", None
     if _frame.is_numeric(raw):
         return _frame.to_float(raw), "number", None
     if _frame.is_datetime(raw):

@@ -22,8 +22,8 @@ def did_you_mean(name: str, options: Iterable[str]) -> str:
 
 def show_rows(rows: Sequence[int], limit: int = 5) -> str:
     """Format row numbers as 'rows 3, 7, 9 (and 12 more)'."""
-    rows = [int(r) for r in rows]
-    head = ", ".join(str(r) for r in rows[:limit])
-    more = f" (and {len(rows) - limit} more)" if len(rows) > limit else ""
-    word = "row" if len(rows) == 1 else "rows"
+    total = len(rows)
+    head = ", ".join(str(int(r)) for r in rows[:limit])
+    more = f" (and {total - limit} more)" if total > limit else ""
+    word = "row" if total == 1 else "rows"
     return f"{word} {head}{more}"
