@@ -14,7 +14,7 @@ from sklearn.base import clone
 
 from .._text import did_you_mean
 from ..errors import EvaluationError
-from ._inputs import _codes, _log_populations, read_target
+from ._inputs import _codes, _log_populations, check_units, read_target
 from .splits import check_splitter
 
 __all__ = ["WHERE", "UnitInputs", "check_settings", "prepare_units", "read_outcomes", "rules_transformer",
@@ -90,20 +90,7 @@ def _unit_populations(X, population, log, log_codes, notes) -> tuple[np.ndarray,
 
 def prepare_units(log, units, y, population, unit) -> UnitInputs:
     """Check the units table against the log and read the label, students and populations."""
-    from ..log import EventLog
-    from ..units import as_unit
-
-    if not isinstance(log, EventLog):
-        raise EvaluationError(f"{WHERE}: 'log' must be a rulefeat.EventLog. Got {type(log).__name__}.")
-    if not isinstance(units, pd.DataFrame) or len(units) == 0:
-        raise EvaluationError(f"{WHERE}: 'units' must be a non-empty pandas DataFrame of unit keys (one row per "
-                              f"unit). Got {type(units).__name__}.")
-    spec = as_unit(unit, where=WHERE)
-    cols = [str(c) for c in units.columns]
-    lacking = [k for k in spec.keys() if k not in cols]
-    if lacking:
-        raise EvaluationError(f"{WHERE}: units lacks the key columns {lacking!r} of unit {spec.name!r} (needs "
-                              f"{list(spec.keys())!r}).{did_you_mean(lacking[0], cols)} Columns: {cols!r}.")
+    spec = check_units(log, units, unit, where=WHERE)
     values, y_column = read_target(units, y, len(units), where=WHERE)
     y_coded, positive = _binary_label(values)
     X = (units.drop(columns=[y_column]) if y_column is not None else units).reset_index(drop=True)
@@ -180,24 +167,9 @@ def rules_transformer(rules, log, unit):
 
 def mined_transformer(mined, log, unit, seed: int):
     """``mined``: None (default LogFeatures), a dict of LogFeatures parameters, or a transformer on ``log``."""
-    from ..log_features import LogFeatures
+    from .engine import _mined_transformer
 
-    if mined is None:
-        return LogFeatures(log=log, unit=unit, random_state=seed)
-    if isinstance(mined, dict):
-        allowed = [k for k in LogFeatures(log=log).get_params() if k not in ("log", "unit")]
-        for key in mined:
-            if key not in allowed:
-                raise EvaluationError(f"The 'mined' parameter of {WHERE} has an unknown LogFeatures parameter "
-                                      f"{key!r}.{did_you_mean(str(key), allowed)} Allowed: {allowed!r}.")
-        return LogFeatures(log=log, unit=unit, **{"random_state": seed, **mined})
-    if hasattr(mined, "fit") and hasattr(mined, "transform") and hasattr(mined, "get_params"):
-        if getattr(mined, "log", log) is not log:
-            raise EvaluationError(f"{WHERE}: the mined transformer reads a different EventLog than the 'log' "
-                                  "argument. Build it with log=<the same log>.")
-        return mined
-    raise EvaluationError(f"The 'mined' parameter of {WHERE} must be None, a dict of LogFeatures parameters, or a "
-                          f"scikit-learn transformer (e.g. LogFeatures(...)). Got {type(mined).__name__}.")
+    return _mined_transformer(mined, log, unit, seed, where=WHERE)
 
 
 def check_classifier(model):

@@ -152,22 +152,29 @@ def _populations(units, population, log, log_codes, notes) -> tuple[np.ndarray, 
     return codes, names, population
 
 
-def prepare(log, units, y, population, unit, task) -> Inputs:
-    """Check the units table against the log and the unit, and read y, students and populations."""
+def check_units(log, units, unit, where: str = WHERE):
+    """The unit spec, after checking the log, the units table and its key columns."""
     from ..log import EventLog
     from ..units import as_unit
 
     if not isinstance(log, EventLog):
-        raise EvaluationError(f"{WHERE}: 'log' must be a rulefeat.EventLog. Got {type(log).__name__}.")
+        raise EvaluationError(f"{where}: 'log' must be a rulefeat.EventLog. Got {type(log).__name__}.")
     if not isinstance(units, pd.DataFrame) or len(units) == 0:
-        raise EvaluationError(f"{WHERE}: 'units' must be a non-empty pandas DataFrame of unit keys (one row per "
-                              f"unit). Got {type(units).__name__} of length {len(units) if hasattr(units, '__len__') else '?'}.")
-    spec = as_unit(unit, where=WHERE)
+        size = len(units) if hasattr(units, "__len__") else "?"
+        raise EvaluationError(f"{where}: 'units' must be a non-empty pandas DataFrame of unit keys (one row per "
+                              f"unit). Got {type(units).__name__} of length {size}.")
+    spec = as_unit(unit, where=where)
     cols = [str(c) for c in units.columns]
     lacking = [k for k in spec.keys() if k not in cols]
     if lacking:
-        raise EvaluationError(f"{WHERE}: units lacks the key columns {lacking!r} of unit {spec.name!r} (needs "
+        raise EvaluationError(f"{where}: units lacks the key columns {lacking!r} of unit {spec.name!r} (needs "
                               f"{list(spec.keys())!r}).{did_you_mean(lacking[0], cols)} Columns: {cols!r}.")
+    return spec
+
+
+def prepare(log, units, y, population, unit, task) -> Inputs:
+    """Check the units table against the log and the unit, and read y, students and populations."""
+    spec = check_units(log, units, unit)
     values, y_column = read_target(units, y, len(units))
     task, y_coded, positive = resolve_task(values, task)
     X = units.drop(columns=[y_column]) if y_column is not None else units

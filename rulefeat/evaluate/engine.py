@@ -104,11 +104,11 @@ def _ruleset(rules):
     return as_ruleset(rules)
 
 
-def _same_log(transformer, log, name: str):
+def _same_log(transformer, log, name: str, where: str = WHERE):
     """A transformer given ready-made must read the evaluation's log, or its features describe other events."""
     own = getattr(transformer, "log", log)
     if own is not log:
-        raise EvaluationError(f"{WHERE}: the {name} transformer reads a different EventLog than the 'log' argument "
+        raise EvaluationError(f"{where}: the {name} transformer reads a different EventLog than the 'log' argument "
                               f"({own!r} vs {log!r}). Build it with log=<the same log>.")
     return transformer
 
@@ -123,7 +123,7 @@ def _rules_transformer(rules, log, unit):
     return RuleFeatures(rules=ruleset, log=log, unit=unit), ruleset
 
 
-def _mined_transformer(mined, log, unit, seed: int):
+def _mined_transformer(mined, log, unit, seed: int, where: str = WHERE):
     """``mined``: None (default LogFeatures), a dict of LogFeatures parameters, or any transformer."""
     from ..log_features import LogFeatures
 
@@ -133,12 +133,12 @@ def _mined_transformer(mined, log, unit, seed: int):
         allowed = [k for k in LogFeatures(log=log).get_params() if k not in ("log", "unit")]
         for key in mined:
             if key not in allowed:
-                raise EvaluationError(f"The 'mined' parameter of {WHERE} has an unknown LogFeatures parameter "
+                raise EvaluationError(f"The 'mined' parameter of {where} has an unknown LogFeatures parameter "
                                       f"{key!r}.{did_you_mean(str(key), allowed)} Allowed: {allowed!r}.")
         return LogFeatures(log=log, unit=unit, **{"random_state": seed, **mined})
     if hasattr(mined, "fit") and hasattr(mined, "transform") and hasattr(mined, "get_params"):
-        return _same_log(mined, log, "mined")
-    raise EvaluationError(f"The 'mined' parameter of {WHERE} must be None, a dict of LogFeatures parameters, or a "
+        return _same_log(mined, log, "mined", where)
+    raise EvaluationError(f"The 'mined' parameter of {where} must be None, a dict of LogFeatures parameters, or a "
                           f"scikit-learn transformer (e.g. LogFeatures(...)). Got {type(mined).__name__}.")
 
 
