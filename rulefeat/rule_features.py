@@ -106,7 +106,7 @@ class RuleFeatures(UnitTransformer):
         """Compile the rules and learn their norms from the training students' events."""
         self._start_fit(X)
         ruleset = as_ruleset(self.rules)
-        program = ruleset.compile(self.log, min_count=int(self.min_count))
+        program = ruleset.bind(self.log, min_count=int(self.min_count))
         program.fit(self._training_log(X))
         self.program_ = program
         self._fired_cache = None

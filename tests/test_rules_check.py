@@ -25,7 +25,7 @@ def underlined(message: str) -> str:
 def refuse(when, pattern, under=None, log=LOG, extra=()):
     rules = RuleSet([Rule("r", when=when), *extra])
     with pytest.raises(RuleCheckError, match=pattern) as info:
-        rules.compile(log)
+        rules.bind(log)
     message = str(info.value)
     assert message.startswith("Rule 'r': ") or message.startswith("Rule '")
     if under is not None:
@@ -127,15 +127,15 @@ def test_cycles_are_refused_with_the_path():
     rules = RuleSet([Rule("a", when="b or gap < 1"), Rule("b", when="c and gap < 2"), Rule("c", when="not a")])
     with pytest.raises(RuleCheckError, match=r"Rule 'c': rules refer to each other in a cycle: a -> b -> c -> a") \
             as info:
-        rules.compile(LOG)
+        rules.bind(LOG)
     assert underlined(str(info.value)) == "a"
     with pytest.raises(RuleCheckError, match=r"cycle: selfish -> selfish"):
-        RuleSet([Rule("selfish", when="selfish and gap < 3")]).compile(LOG)
+        RuleSet([Rule("selfish", when="selfish and gap < 3")]).bind(LOG)
 
 
 def test_long_chain_of_rules_compiles_without_deep_recursion():
     chain = [Rule("r0", when="gap < 3")] + [Rule(f"r{i}", when=f"r{i - 1} and gap < {i + 3}") for i in range(1, 1500)]
-    program = RuleSet(chain).compile(LOG)
+    program = RuleSet(chain).bind(LOG)
     assert program.evaluate(LOG)["r1499"].tolist() == [False, True, False]
 
 
@@ -148,7 +148,7 @@ def test_fitted_rule_inside_among_is_refused():
 
 def test_rule_name_clashing_with_a_field():
     with pytest.raises(RuleCheckError, match=r"Rule 'gap': rule name 'gap' is also a field of the log; rename"):
-        RuleSet([Rule("gap", when="duration > 1")]).compile(LOG)
+        RuleSet([Rule("gap", when="duration > 1")]).bind(LOG)
 
 
 RULE_ERRORS = [
@@ -181,9 +181,9 @@ def test_ruleset_errors():
         RuleSet([Rule("x", when="gap < 1"), Rule("y", when="gap < 2"), Rule("x", when="gap < 3")])
     with pytest.raises(RuleCheckError, match=r"RuleSet: item 0 is a str, not a Rule"):
         RuleSet(["gap < 3"])
-    with pytest.raises(ParameterError, match=r"The 'min_count' parameter of RuleSet.compile must be a positive "
+    with pytest.raises(ParameterError, match=r"The 'min_count' parameter of RuleSet.bind must be a positive "
                                              r"integer\. Got 0 instead\."):
-        RuleSet([Rule("x", when="gap < 1")]).compile(LOG, min_count=0)
+        RuleSet([Rule("x", when="gap < 1")]).bind(LOG, min_count=0)
 
 
 def test_every_message_has_one_format():

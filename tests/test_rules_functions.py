@@ -191,7 +191,7 @@ def test_rule_references_are_definite():
 
 def test_evaluate_returns_bool_arrays_in_log_order_for_sub_logs():
     rules = RuleSet(RULES)
-    program = rules.compile(LOG)
+    program = rules.bind(LOG)
     assert program.is_fitted  # no norms: no fit needed
     full = program.evaluate(LOG)
     sub = program.evaluate(LOG.for_students(["b"]))
@@ -203,7 +203,7 @@ def test_evaluate_returns_bool_arrays_in_log_order_for_sub_logs():
 
 
 def test_program_needs_fit_when_rules_use_norms():
-    program = RuleSet([Rule("slow", when="duration > 2 * typical(duration)")]).compile(LOG)
+    program = RuleSet([Rule("slow", when="duration > 2 * typical(duration)")]).bind(LOG)
     assert not program.is_fitted and program.norms_ == {}
     with pytest.raises(EvaluationError, match=r"uses? fitted norms \(typical\(duration, per='step', q=0.5\)\); "
                                               r"call program.fit\(train_log\) first"):
@@ -216,7 +216,7 @@ def test_program_needs_fit_when_rules_use_norms():
 
 
 def test_log_with_other_schema_is_refused():
-    program = RuleSet([Rule("s1", when="step == 's1'")]).compile(LOG)
+    program = RuleSet([Rule("s1", when="step == 's1'")]).bind(LOG)
     other = EventLog(RAW.assign(step=RAW["step"].replace({"s3": "s4"})))
     with pytest.raises(LogSchemaError, match=r"Program.evaluate: the categories of field 'step' differ"):
         program.evaluate(other)
@@ -239,7 +239,7 @@ def test_shared_sub_expressions_are_computed_once(monkeypatch):
         Rule("hint_then_try", when="action == 'attempt' and prev(action, within = 'step', n=1) == 'hint'"),
         Rule("after_two", when="prev(action, within='step') == 'hint' and two_hints"),
     ])
-    program = rules.compile(LOG)
+    program = rules.bind(LOG)
     program.evaluate(LOG)
     assert len(calls) == 1  # one shared prev(action, within='step') for three rules
     program.evaluate(LOG)
@@ -248,7 +248,7 @@ def test_shared_sub_expressions_are_computed_once(monkeypatch):
 
 def test_scope_orderings_are_cached_on_the_log():
     log = EventLog(RAW)
-    RuleSet([Rule("x", when="prev(action, within='step') == 'hint'")]).compile(log).evaluate(log)
+    RuleSet([Rule("x", when="prev(action, within='step') == 'hint'")]).bind(log).evaluate(log)
     groups = log.cached(("rulefeat.rules", "groups", "step"), lambda: None)
     assert groups is not None
     assert groups.order.tolist() == [9, 0, 1, 2, 5, 3, 4, 6, 7, 8, 10]  # ungrouped first, then by group

@@ -367,7 +367,7 @@ def cases(draw):
 def test_compiled_rules_match_the_reference_interpreter(case):
     log, rules, students, min_count = case
     train = log.for_students(students)
-    program = RuleSet(rules).compile(log, min_count=min_count).fit(train)
+    program = RuleSet(rules).bind(log, min_count=min_count).fit(train)
     fired = program.evaluate(log)
     trees = {r.name: parse(r.when) for r in rules}
     ref = Reference(log, trees, train=train, min_count=min_count)
@@ -382,7 +382,7 @@ def test_norms_do_not_depend_on_other_students(case, data):
     """Leakage: norms fitted on training students ignore every change to the other students' events."""
     log, rules, students, min_count = case
     rules = rules + [Rule("spread", when="duration > typical(duration, per='step') or zscore(score) > 0.5")]
-    program = RuleSet(rules).compile(log, min_count=min_count).fit(log.for_students(students))
+    program = RuleSet(rules).bind(log, min_count=min_count).fit(log.for_students(students))
     frame = log.to_frame(derived=False).reset_index(drop=True)
     others = ~frame["student"].isin(students)
     changed = frame.copy()
@@ -391,7 +391,7 @@ def test_norms_do_not_depend_on_other_students(case, data):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RulefeatWarning)
         log2 = EventLog(changed, session_gap=1000.0)
-    program2 = RuleSet(rules).compile(log2, min_count=min_count).fit(log2.for_students(students))
+    program2 = RuleSet(rules).bind(log2, min_count=min_count).fit(log2.for_students(students))
     state, state2 = program.norms_, program2.norms_
     assert state.keys() == state2.keys()
     for key in state:

@@ -122,12 +122,12 @@ def test_rule_is_a_frozen_value():
 
 def test_program_api_and_determinism():
     rs = RuleSet.from_toml(RULES_TOML)
-    program = rs.compile(LOG, min_count=2)
+    program = rs.bind(LOG, min_count=2)
     assert program.rules is rs and program.report == {r.name: r.report for r in rs}
     assert program.min_count == 2 and not program.is_fitted
     train = LOG.for_students(["a"])
     first = program.fit(train).norms_
-    second = rs.compile(LOG, min_count=2).fit(train).norms_
+    second = rs.bind(LOG, min_count=2).fit(train).norms_
     assert first.keys() == second.keys() == {"typical(duration, per='step', q=0.5)"}
     for key, state in first.items():
         assert set(state) == {"function", "field", "per", "q", "among", "count", "value", "overall"}
@@ -139,7 +139,7 @@ def test_program_api_and_determinism():
 
 
 def test_pickled_program_evaluates_the_same():
-    program = RuleSet.from_toml(RULES_TOML).compile(LOG).fit(LOG)
+    program = RuleSet.from_toml(RULES_TOML).bind(LOG).fit(LOG)
     again = pickle.loads(pickle.dumps(program))
     for name, fired in program.evaluate(LOG).items():
         np.testing.assert_array_equal(fired, again.evaluate(LOG)[name])
@@ -165,5 +165,5 @@ def test_values_decodes_each_type():
 
 def test_empty_ruleset():
     rs = RuleSet([])
-    assert len(rs) == 0 and rs.to_toml() == "" and rs.compile(LOG).evaluate(LOG) == {}
+    assert len(rs) == 0 and rs.to_toml() == "" and rs.bind(LOG).evaluate(LOG) == {}
     assert rs.evaluate(LOG).shape == (len(LOG), 0)

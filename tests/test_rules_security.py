@@ -42,7 +42,7 @@ HOSTILE = [
 def test_hostile_text_fails_fast_with_library_errors(text):
     start = time.perf_counter()
     try:
-        program = RuleSet([Rule("r", when=text)]).compile(LOG)
+        program = RuleSet([Rule("r", when=text)]).bind(LOG)
         program.fit(LOG).evaluate(LOG)  # the few that are valid rules must evaluate harmlessly
     except RulefeatError:
         pass
@@ -51,7 +51,7 @@ def test_hostile_text_fails_fast_with_library_errors(text):
 
 def test_specific_hostile_refusals():
     with pytest.raises(RuleCheckError, match="unknown function '__import__'"):
-        RuleSet([Rule("r", when="__import__('os')")]).compile(LOG)
+        RuleSet([Rule("r", when="__import__('os')")]).bind(LOG)
     with pytest.raises(RuleSyntaxError, match="rule text too long"):
         RuleSet([Rule("r", when="x" * 1_000_000)])
     with pytest.raises(RuleSyntaxError, match="nested too deeply"):
@@ -59,12 +59,12 @@ def test_specific_hostile_refusals():
     with pytest.raises(RuleSyntaxError, match="U\\+0000"):
         RuleSet([Rule("r", when="gap\x00 < 3")])
     with pytest.raises(RuleCheckError, match=r"'__class__' is a field or rule, not a function"):
-        RuleSet([Rule("r", when="__class__ > 1 and __class__()")]).compile(LOG)
+        RuleSet([Rule("r", when="__class__ > 1 and __class__()")]).bind(LOG)
 
 
 def test_huge_counts_are_harmless():
     fired = RuleSet([Rule("r", when="prev(action, n=1e15) == 'hint' or count_recent(correct, "
-                                   "actions=999999999999999) > 0")]).compile(LOG).evaluate(LOG)
+                                   "actions=999999999999999) > 0")]).bind(LOG).evaluate(LOG)
     assert fired["r"].tolist() == [True, True, False]  # a: correct at its first event; b: wrong
 
 
@@ -72,7 +72,7 @@ def test_huge_counts_are_harmless():
 @given(st.text(max_size=200))
 def test_arbitrary_text_raises_only_library_errors(text):
     try:
-        RuleSet([Rule("r", when=text)]).compile(LOG).fit(LOG).evaluate(LOG)
+        RuleSet([Rule("r", when=text)]).bind(LOG).fit(LOG).evaluate(LOG)
     except RulefeatError:
         pass
 
@@ -88,7 +88,7 @@ TOKENS = ["action", "gap", "correct", "step", "duration", "r", "x", "prev", "nex
 @given(st.lists(st.sampled_from(TOKENS), max_size=25).map(" ".join))
 def test_token_soup_raises_only_library_errors(text):
     try:
-        RuleSet([Rule("r", when=text), Rule("x", when="gap < 1")]).compile(LOG).fit(LOG).evaluate(LOG)
+        RuleSet([Rule("r", when=text), Rule("x", when="gap < 1")]).bind(LOG).fit(LOG).evaluate(LOG)
     except RulefeatError:
         pass
 
@@ -98,7 +98,7 @@ MODULES = re.compile(r"\b(importlib|builtins)\b")
 
 
 def test_rule_package_never_reaches_python_evaluation():
-    """No eval/exec/compile/__import__/getattr in rulefeat/rules (method names such as .compile( aside)."""
+    """No eval/exec/compile/__import__/getattr in rulefeat/rules (method names such as re.compile( aside)."""
     offenders = []
     for path in sorted(Path(rulefeat.rules.__file__).parent.glob("*.py")):
         for number, line in enumerate(path.read_text().splitlines(), 1):

@@ -276,7 +276,7 @@ def test_behaviours_knob_scales_prevalence():
     for b in ("hint_skim", "help_avoid", "idle"):
         np.testing.assert_array_equal(more.truth.student_params[f"p_{b}"], base.truth.student_params[f"p_{b}"])
     ratio = more.truth.event_behaviour["rapid_guess"].mean() / base.truth.event_behaviour["rapid_guess"].mean()
-    assert 1.5 < ratio < 2.6
+    assert ratio > 1.5 and ratio < 2.6
 
 
 # ----------------------------------------------------------------- knowledge

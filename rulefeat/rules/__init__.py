@@ -8,7 +8,7 @@ The whole language is described in ``docs/rules.md``. The public entry points:
 >>> log = EventLog(pd.DataFrame({"student": ["a", "a", "a"], "time": [0.0, 1.0, 9.0],
 ...                              "action": ["hint", "hint", "attempt"]}))
 >>> rules = RuleSet([Rule("quick_hint", when="action == 'hint' and prev(action) == 'hint' and gap < 3s")])
->>> program = rules.compile(log).fit(log)
+>>> program = rules.bind(log).fit(log)
 >>> program.evaluate(log)["quick_hint"].tolist()
 [False, True, False]
 """

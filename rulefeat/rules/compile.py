@@ -172,7 +172,7 @@ def _walk(tree: Node):
 class Program:
     """Rules compiled against a log's schema: fit the norms on training events, then evaluate any log.
 
-    Made by :meth:`RuleSet.compile`; not built directly.
+    Made by :meth:`RuleSet.bind`; not built directly.
 
     Attributes
     ----------

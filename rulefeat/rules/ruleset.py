@@ -173,14 +173,14 @@ class RuleSet:
         return tuple(rule.name for rule in self._rules)
 
     # -- compilation -------------------------------------------------------------------------------
-    def compile(self, log, *, min_count: int = 5) -> Program:
+    def bind(self, log, *, min_count: int = 5) -> Program:
         """Check the rules against ``log``'s schema and compile them into a :class:`Program`.
 
         ``min_count`` is how many training values a key (e.g. a step) needs before
         ``typical``/``zscore`` use its own statistic rather than the overall one.
         """
         if isinstance(min_count, bool) or not isinstance(min_count, int) or min_count < 1:
-            raise ParameterError(f"The 'min_count' parameter of RuleSet.compile must be a positive integer. "
+            raise ParameterError(f"The 'min_count' parameter of RuleSet.bind must be a positive integer. "
                                  f"Got {min_count!r} instead.")
         entries = [(rule.name, rule.when, self._trees[rule.name]) for rule in self._rules]
         return Program(self, check_all(entries, log), log, min_count)
@@ -192,7 +192,7 @@ class RuleSet:
         log, so nothing here is held out. Use :meth:`compile`, ``fit`` on training
         students and ``evaluate`` for honest features.
         """
-        program = self.compile(log, min_count=min_count).fit(log)
+        program = self.bind(log, min_count=min_count).fit(log)
         fired = program.evaluate(log)
         return _frame.frame_from_arrays(fired, index=pd.Index(log.row_numbers, name="input_row"))
 
