@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import copy
 import json
-import math
 from collections.abc import Mapping
 from pathlib import Path
 
@@ -43,18 +42,10 @@ _TABLE = {
 
 
 def _plain(value, path: str = "results"):
-    """A JSON-ready copy: numpy scalars to Python, NaN and infinities to None, tuples to lists."""
-    if isinstance(value, Mapping):
-        return {str(k): _plain(v, f"{path}[{k!r}]") for k, v in value.items()}
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [_plain(v, f"{path}[{i}]") for i, v in enumerate(list(value))]
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if value is None or isinstance(value, (str, int, bool)):
-        return value
-    raise EvaluationError(f"{_WHERE}: {path} holds a {type(value).__name__} ({value!r}), which JSON cannot hold.")
+    """A JSON-ready copy (the evaluation report's own conversion, named for diagnostics)."""
+    from .report import _plain as plain
+
+    return plain(value, path, where=_WHERE)
 
 
 def _check(results) -> dict:

@@ -77,12 +77,12 @@ def _check_oof(oof, name: str, columns: Sequence[str]) -> pd.DataFrame:
 
 
 # -- JSON ----------------------------------------------------------------------------------------
-def _plain(value, path: str = "results"):
-    """A JSON-ready copy: numpy scalars to Python, NaN and infinities to None."""
+def _plain(value, path: str = "results", where: str = "IncrementalValueReport.to_json"):
+    """A JSON-ready copy: numpy scalars to Python, NaN and infinities to None, tuples to lists."""
     if isinstance(value, Mapping):
-        return {str(k): _plain(v, f"{path}[{k!r}]") for k, v in value.items()}
+        return {str(k): _plain(v, f"{path}[{k!r}]", where) for k, v in value.items()}
     if isinstance(value, (list, tuple, np.ndarray)):
-        return [_plain(v, f"{path}[{i}]") for i, v in enumerate(list(value))]
+        return [_plain(v, f"{path}[{i}]", where) for i, v in enumerate(list(value))]
     if isinstance(value, np.generic):
         value = value.item()
     if isinstance(value, float):
@@ -91,7 +91,7 @@ def _plain(value, path: str = "results"):
         return value
     if value is pd.NA or value is pd.NaT:
         return None
-    raise EvaluationError(f"IncrementalValueReport.to_json: {path} holds a {type(value).__name__} "
+    raise EvaluationError(f"{where}: {path} holds a {type(value).__name__} "
                           f"({value!r}), which JSON cannot hold; results may contain only str, int, float, "
                           "bool, None, lists and dicts.")
 
