@@ -91,7 +91,7 @@ def _path_expectation(node: dict, x: np.ndarray, known: set[int]) -> float:
 
 
 def test_regressor_matches_brute_force_shapley_values():
-    # Independent reference: the exact Shapley values of the cover-weighted conditional expectation that
+    # Our own brute-force reference: the exact Shapley values of the cover-weighted conditional expectation that
     # path-dependent TreeSHAP explains (Lundberg, Erion & Lee 2018, arXiv:1802.03888, Algorithm 1),
     # enumerated over all feature subsets from the dumped trees.
     from itertools import combinations

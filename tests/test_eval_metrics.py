@@ -1,4 +1,4 @@
-"""Per-fold and pooled metrics, checked against scikit-learn (reference library) and textbook values."""
+"""Per-fold and pooled metrics, checked against scikit-learn (reference library) and hand-computed values."""
 
 import numpy as np
 import pytest
@@ -44,7 +44,7 @@ def test_probability_metrics_match_sklearn(ties):
         assert weighted_brier(y, p, sw) == pytest.approx(skm.brier_score_loss(y, p, sample_weight=sw), abs=1e-12)
 
 
-def test_kappa_matches_sklearn_and_textbook():
+def test_kappa_matches_sklearn_and_hand_computed_table():
     y, p, w = _case(1)
     labels = p >= 0.5
     # Reference library: sklearn.metrics.cohen_kappa_score (also weighted) and our stats.cohen_kappa.
@@ -52,7 +52,7 @@ def test_kappa_matches_sklearn_and_textbook():
     assert weighted_kappa(y, labels) == pytest.approx(stats.cohen_kappa(y, labels.astype(float)), abs=1e-12)
     assert weighted_kappa(y, labels, w) == pytest.approx(skm.cohen_kappa_score(y, labels, sample_weight=w),
                                                          abs=1e-12)
-    # Textbook 2x2 agreement table [[20, 5], [10, 15]]: kappa = 0.40 (Cohen 1960; standard textbook example).
+    # 2x2 agreement table [[20, 5], [10, 15]]: kappa = 0.40, hand-computed from Cohen's (1960) definition.
     truth = np.r_[np.zeros(25), np.ones(25)]
     pred = np.r_[np.zeros(20), np.ones(5), np.zeros(10), np.ones(15)]
     assert weighted_kappa(truth, pred) == pytest.approx(0.40, abs=1e-12)

@@ -55,9 +55,10 @@ def fitted(two_skills):
 
 
 # ----------------------------------------------------------------------------- forward equations
-def test_forward_matches_published_worked_example():
-    # Source: Corbett & Anderson (1995), User Modeling and User-Adapted Interaction 4:253-278; worked
-    # example in shared/reference/README.md. L0 .4, T .1, G .2, S .1; responses correct, wrong, correct.
+def test_forward_matches_example_hand_computed_from_published_equations():
+    # Hand-computed from the published equations of Corbett & Anderson (1995), User Modeling and User-Adapted
+    # Interaction 4:253-278: P(correct) = L(1-S) + (1-L)G, Bayes update on the response, then L + (1-L)T.
+    # L0 .4, T .1, G .2, S .1; responses correct, wrong, correct.
     trace = BKTParams.single(0.4, 0.1, 0.2, 0.1).forward([0, 0, 0], [-1, -1, -1], [1, 0, 1])
     np.testing.assert_allclose(trace.p_correct, [0.48, 0.7425, 0.459612], atol=1e-6)
     np.testing.assert_allclose(trace.p_known_after, [0.775, 191 / 515, 991 / 1315], rtol=1e-12)

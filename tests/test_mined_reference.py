@@ -334,8 +334,8 @@ def test_reference_timing_by_hand(hand_reference):
     assert r.loc[0, "timing__session_elapsed_at_end"] == 30.0
 
 
-def test_reference_bkt_trace_matches_published_example():
-    """Corbett & Anderson (1995) worked example from shared/reference/README.md: L0 .4, T .1, G .2, S .1."""
+def test_reference_bkt_trace_matches_example_hand_computed_from_published_equations():
+    """Hand-computed from the published equations of Corbett & Anderson (1995): L0 .4, T .1, G .2, S .1."""
     f = pd.DataFrame({"student": ["s"] * 3, "skill": ["k"] * 3, "judged": True, "pos": [0, 1, 2],
                       "correct": [1.0, 0.0, 1.0]})
     params = {"skills": ["k"], "table": lambda codes: np.tile([0.4, 0.1, 0.2, 0.1], (len(codes), 1))}

@@ -2,14 +2,12 @@
 
 from __future__ import annotations
 
-import csv
-from pathlib import Path
-
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from scipy import stats as sps
+from sklearn.datasets import load_breast_cancer
 from sklearn.metrics import accuracy_score, cohen_kappa_score, roc_auc_score
 from statsmodels.stats.inter_rater import cohens_kappa as sm_cohens_kappa
 from statsmodels.stats.multitest import multipletests
@@ -38,14 +36,31 @@ from rulefeat.evaluate.stats import (
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 
-# asah.csv: example data bundled with the R package pROC, Turck et al. 2010; values from pROC's test suite
+# World Federation of Neurosurgical Societies grade (1-5) by six-month outcome of 113 patients with aneurysmal
+# subarachnoid haemorrhage (Turck et al. 2010, the aSAH example data distributed with the R package pROC, whose
+# licence is not ours): 72 "Good", 41 "Poor" (the positive class). Only this 2 x 5 summary table is written here;
+# the rows are not bundled (tests/data/README.md). AUC and DeLong variance depend on an ordinal score only through
+# this table, so pROC's own expected values for the grade apply to it.
+WFNS_GOOD = [37, 20, 3, 8, 4]
+WFNS_POOR = [2, 12, 1, 8, 18]
+# Expected values for the grade in pROC's test suite (tests/testthat/test-roc.test.R and test-var.R).
+WFNS_AUC, WFNS_DELONG_VAR = 0.823678861788618, 0.00146991470882363
+
+
+def wfns_table() -> tuple[np.ndarray, np.ndarray]:
+    y = np.r_[np.zeros(sum(WFNS_GOOD), bool), np.ones(sum(WFNS_POOR), bool)]
+    grade = np.r_[np.repeat(np.arange(1, 6), WFNS_GOOD), np.repeat(np.arange(1, 6), WFNS_POOR)].astype(float)
+    return y, grade
+
+
 @pytest.fixture(scope="module")
-def asah() -> dict[str, np.ndarray]:
-    with open(Path(__file__).parent / "data" / "asah.csv", newline="") as handle:
-        rows = list(csv.DictReader(handle))
-    data = {name: np.array([float(r[name]) for r in rows]) for name in ("wfns", "s100b", "ndka")}
-    data["poor"] = np.array([r["outcome"] == "Poor" for r in rows])
-    return data
+def cancer() -> tuple[np.ndarray, np.ndarray]:
+    """scikit-learn's bundled Wisconsin diagnostic breast cancer data (569 cases; load_breast_cancer)."""
+    data = load_breast_cancer()
+    malignant = data.target == 0
+    names = list(data.feature_names)
+    columns = [names.index(n) for n in ("mean radius", "mean texture", "worst concave points", "mean symmetry")]
+    return malignant, data.data[:, columns].T.copy()
 
 
 def brute_delong(y: np.ndarray, scores: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -57,14 +72,19 @@ def brute_delong(y: np.ndarray, scores: np.ndarray) -> tuple[np.ndarray, np.ndar
 
 
 # ------------------------------------------------------------------ AUC
-@pytest.mark.parametrize("name, expected", [
-    ("wfns", 0.823678861788618), ("s100b", 0.731368563685637), ("ndka", 0.611957994579946),
-])
-def test_auc_matches_proc_asah(asah, name, expected):
-    # Source: pROC test suite (tests/testthat/test-roc.test.R), via /work/shared/reference/README.md.
-    assert auc(asah["poor"], asah[name]) == pytest.approx(expected, abs=1e-12)
+def test_auc_matches_proc_wfns():
+    # Source: pROC's test suite (tests/testthat/test-roc.test.R), AUC of the WFNS grade in the aSAH data.
+    y, grade = wfns_table()
+    assert auc(y, grade) == pytest.approx(WFNS_AUC, abs=1e-12)
     # Reference library: scikit-learn.
-    assert auc(asah["poor"], asah[name]) == pytest.approx(roc_auc_score(asah["poor"], asah[name]), abs=1e-14)
+    assert auc(y, grade) == pytest.approx(roc_auc_score(y, grade), abs=1e-14)
+
+
+def test_auc_matches_sklearn_on_breast_cancer(cancer):
+    # Reference library: scikit-learn's roc_auc_score on its own bundled data set, continuous scores.
+    y, scores = cancer
+    for score in scores:
+        assert auc(y, score) == pytest.approx(roc_auc_score(y, score), abs=1e-14)
 
 
 def test_auc_label_conventions():
@@ -111,37 +131,48 @@ def test_auc_bad_input(y, score, weight, match):
 
 
 # ------------------------------------------------------------------ DeLong
-def test_delong_variances_match_proc_asah(asah):
-    # Source: pROC test suite (test-var.R), via the reference README.
-    scores = np.vstack([asah["wfns"], asah["s100b"], asah["ndka"]])
-    aucs, cov = delong_covariance(asah["poor"], scores)
-    expected = [0.00146991470882363, 0.00266868245717244, 0.0031908105493913]
-    np.testing.assert_allclose(np.diag(cov), expected, rtol=1e-9, atol=1e-12)
-    np.testing.assert_allclose(aucs, [0.823678861788618, 0.731368563685637, 0.611957994579946], atol=1e-12)
-    assert np.allclose(cov, cov.T)
+def test_delong_variance_matches_proc_wfns():
+    # Source: pROC's test suite (tests/testthat/test-var.R), DeLong variance of the WFNS grade's AUC.
+    y, grade = wfns_table()
+    aucs, cov = delong_covariance(y, grade[None, :])
+    assert aucs[0] == pytest.approx(WFNS_AUC, abs=1e-12)
+    assert cov[0, 0] == pytest.approx(WFNS_DELONG_VAR, rel=1e-9)
+    # Our brute-force structural components (DeLong et al. 1988) agree to rounding.
+    brute = brute_delong(y, grade[None, :])
+    np.testing.assert_allclose(cov, brute[1], atol=1e-15)
 
 
-@pytest.mark.parametrize("a, b, z, p, low, high", [
-    ("wfns", "s100b", 2.20898359144091, 0.0271757822291882, 0.0104061769564846, 0.174214419249478),
-    ("wfns", "ndka", 2.79777591868904, 0.00514557970691098, 0.0634011709339876, 0.3600405634833566),
-    ("ndka", "s100b", -1.39077002573558, 0.164295175223054, -0.2876917446341914, 0.0488706064228094),
-])
-def test_delong_test_matches_proc_asah(asah, a, b, z, p, low, high):
-    # Source: pROC test suite (roc.test DeLong, test-ci.auc.R), via the reference README.
-    r = delong_test(asah["poor"], asah[a], asah[b])
+def test_delong_test_against_a_constant_score_follows_from_proc_wfns():
+    # A constant score has AUC 1/2 and no structural-component variance, so the paired test of the grade against
+    # it is z = (AUC - 1/2) / sqrt(var): derived here from pROC's single-score values above (test-var.R).
+    y, grade = wfns_table()
+    r = delong_test(y, grade, np.zeros_like(grade))
     assert isinstance(r, DeLongResult)
-    assert r.z == pytest.approx(z, abs=1e-9)
-    assert r.p_value == pytest.approx(p, abs=1e-9)
-    assert (r.ci_low, r.ci_high) == pytest.approx((low, high), abs=1e-9)
-    assert r.difference == pytest.approx(r.auc_a - r.auc_b, abs=1e-15)
-    assert r.se == pytest.approx(r.difference / r.z, rel=1e-12)
+    se = np.sqrt(WFNS_DELONG_VAR)
+    assert (r.auc_a, r.auc_b, r.difference) == pytest.approx((WFNS_AUC, 0.5, WFNS_AUC - 0.5), abs=1e-12)
+    assert r.se == pytest.approx(se, rel=1e-9)
+    assert r.z == pytest.approx((WFNS_AUC - 0.5) / se, rel=1e-9)
+    # Reference library: scipy's normal distribution for the two-sided p and the 95 % interval.
+    assert r.p_value == pytest.approx(2 * sps.norm.sf((WFNS_AUC - 0.5) / se), rel=1e-6)
+    assert (r.ci_low, r.ci_high) == pytest.approx(
+        (WFNS_AUC - 0.5 - sps.norm.ppf(0.975) * se, WFNS_AUC - 0.5 + sps.norm.ppf(0.975) * se), abs=1e-9)
 
 
-def test_delong_asah_against_brute_force(asah):
-    scores = np.vstack([asah["wfns"], asah["s100b"], asah["ndka"]])
-    fast, brute = delong_covariance(asah["poor"], scores), brute_delong(asah["poor"], scores)
+def test_delong_breast_cancer_against_brute_force(cancer):
+    # Our own fast DeLong (midrank form) cross-checked by the brute-force placement values, continuous scores
+    # with ties, and the paired test rebuilt from the brute-force covariance.
+    y, scores = cancer
+    fast, brute = delong_covariance(y, scores), brute_delong(y, scores)
     np.testing.assert_allclose(fast[0], brute[0], atol=1e-13)
     np.testing.assert_allclose(fast[1], brute[1], atol=1e-13)
+    aucs, cov = brute
+    for a, b in [(0, 1), (2, 0), (3, 1)]:
+        r = delong_test(y, scores[a], scores[b])
+        se = np.sqrt(cov[a, a] + cov[b, b] - 2 * cov[a, b])
+        assert r.difference == pytest.approx(aucs[a] - aucs[b], abs=1e-13)
+        assert r.se == pytest.approx(se, rel=1e-9)
+        assert r.z == pytest.approx((aucs[a] - aucs[b]) / se, rel=1e-9)
+        assert r.p_value == pytest.approx(2 * sps.norm.sf(abs(r.z)), rel=1e-9, abs=1e-300)
 
 
 @FAST
@@ -188,11 +219,15 @@ def test_hanley_mcneil_table_one():
     y = np.r_[np.zeros(58, bool), np.ones(51, bool)]
     ratings = np.r_[np.repeat(np.arange(1, 6), [33, 6, 6, 11, 2]), np.repeat(np.arange(1, 6), [3, 2, 2, 11, 33])]
     area = auc(y, ratings)
-    assert area == pytest.approx(0.893171, abs=1e-6)  # published 0.893
-    # Their SE formula recomputed in the reference README: 0.0325 (published 0.032, from memory).
+    assert area == pytest.approx(0.893171, abs=1e-6)  # published in their Table I as 0.893
+    # SE hand-computed from the published formula of Hanley & McNeil (1982), Q1 = A/(2-A), Q2 = 2A^2/(1+A):
+    # 0.0325 (their printed 0.032 is from memory of the paper).
     assert hanley_mcneil_se(area, 51, 58) == pytest.approx(0.0325, abs=5e-5)
-    # DeLong SE on the same data: 0.0307 (from memory of a statistics package manual; recomputed).
-    assert np.sqrt(delong_covariance(y, ratings)[1][0, 0]) == pytest.approx(0.0307, abs=5e-5)
+    # DeLong SE on the same table: 0.0307, from memory of a statistics-package manual's example on this table
+    # (the manual is not identified); also checked against our brute-force structural components.
+    se = np.sqrt(delong_covariance(y, ratings)[1][0, 0])
+    assert se == pytest.approx(0.0307, abs=5e-5)
+    assert se == pytest.approx(np.sqrt(brute_delong(y, ratings[None, :])[1][0, 0]), rel=1e-12)
 
 
 @pytest.mark.parametrize("args, match", [
@@ -205,14 +240,15 @@ def test_hanley_mcneil_bad_input(args, match):
 
 
 # ------------------------------------------------------------------ kappa
-def test_kappa_textbook_two_by_two():
-    # Standard textbook example (reference README): p_o = 0.70, p_e = 0.50, kappa = 0.40.
+def test_kappa_hand_computed_two_by_two():
+    # Hand-computed from Cohen's (1960) definition: p_o = 35/50 = 0.70, p_e = (25*30 + 25*20)/50^2 = 0.50,
+    # kappa = (0.70 - 0.50) / (1 - 0.50) = 0.40.
     kappa, _ = kappa_from_table([[20, 5], [10, 15]])
     assert kappa == pytest.approx(0.40, abs=1e-12)
 
 
 def test_kappa_three_by_three_and_fleiss_cohen_everitt_se():
-    # Source: a SAS printout transcribed in statsmodels' test suite (stats/tests/test_inter_rater.py):
+    # Source: a SAS printout transcribed in statsmodels' test suite (statsmodels 0.15, stats/tests/test_inter_rater.py):
     # kappa 0.4842, asymptotic SE 0.1380 (Fleiss, Cohen & Everitt 1969 non-null SE).
     table = np.array([[0, 4, 1], [0, 8, 0], [0, 1, 5]])
     kappa, se = kappa_from_table(table)
@@ -297,9 +333,10 @@ def test_best_kappa_threshold_tie_and_rule():
 DIFFS = [0.02, 0.01, 0.03, 0, 0.04, 0.02, 0.01, 0.03, 0.02, 0.02]
 
 
-def test_ttests_reproduce_worked_example():
-    # Source: reference README worked example (2 x 5-fold CV, N = 100; Nadeau & Bengio 2003,
-    # Bouckaert & Frank 2004): naive t 5.4772 (p 0.00039), corrected t 2.9277, df 9, p 0.01682.
+def test_ttests_match_example_hand_computed_from_published_equations():
+    # Hand-computed from the published equations of Nadeau & Bengio (2003) and Bouckaert & Frank (2004),
+    # t = mean(d) / sqrt((1/J + n_test/n_train) var(d)), df = J - 1, for 2 x 5-fold CV on N = 100
+    # (n_train 80, n_test 20): naive t 5.4772 (p 0.00039), corrected t 2.9277, df 9, p 0.01682.
     naive = naive_ttest(DIFFS)
     corrected = corrected_resampled_ttest(DIFFS, n_train=80, n_test=20)
     assert (naive.t, naive.p_value) == pytest.approx((5.4772, 0.00039), abs=5e-5)
