@@ -1,6 +1,6 @@
 """Do the expert rules add value over mined log features?  The main job of rulefeat, from the command line.
 
-By default it runs on simulated logs of the fictional "Lumen Practice" platform with the demo rules
+By default it runs on simulated logs of the fictional "Zorbleth" platform with the demo rules
 (rulefeat/data/demo_rules.toml), prints the summary and per-rule tables and the time of each stage, and writes the
 report folder (report.md, report.json, oof.csv, figures)::
 

@@ -22,14 +22,14 @@ PROPENSITY_CONCENTRATION = 8.0
 MAX_PROPENSITY_MEAN = 0.6
 
 SCHOOLS = (
-    "Brackenfold Middle",
-    "Tidewater Lane Academy",
-    "Osier Hill School",
-    "Cindermoor Commons",
-    "Larchwick Upper School",
-    "Saltmarsh Row Academy",
-    "Fernhollow Middle",
-    "Gildenbrook School",
+    "Bruvelk School",
+    "Tazquorin School",
+    "Ovandrel School",
+    "Czelvorin School",
+    "Lyskavend School",
+    "Sorvellaq School",
+    "Fyzmorrel School",
+    "Gvarnisko School",
 )
 
 SKILLS = (

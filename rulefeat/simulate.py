@@ -1,4 +1,4 @@
-"""Simulated tutoring logs with known truth, from the fictional "Lumen Practice" platform.
+"""Simulated tutoring logs with known truth, from the fictional "Zorbleth" platform.
 
 :func:`tutor_logs` writes the logs of students from a few fictional schools
 practising made-up maths skills, plants four behaviours whose events are marked,
@@ -144,7 +144,7 @@ from rulefeat.errors import SimulationError
 __all__ = ["BEHAVIOURS", "DEFAULT_LABEL_LINKS", "SimulatedTutorData", "SimulationTruth", "tutor_logs"]
 
 DEFAULT_LABEL_LINKS = {"rapid_guess": 1.5, "hint_skim": 1.5, "help_avoid": 0.0, "idle": 0.8}
-PLATFORM = "Lumen Practice"
+PLATFORM = "Zorbleth"
 
 
 @dataclass(frozen=True, eq=False)

@@ -79,7 +79,7 @@ class Diagnostics:
                              "standalone AUC": [0.714, np.nan], "AUC p": [2e-6, 0.4], "students": [60, 12]})
 
     def per_population(self) -> pd.DataFrame:
-        return pd.DataFrame({"rule": ["skimmed_hint"] * 2, "population": [f"School {NASTY}", "Quarry Road"],
+        return pd.DataFrame({"rule": ["skimmed_hint"] * 2, "population": [f"School {NASTY}", "Quevrondel"],
                              "firing rate": [0.01, 0.02]})
 
     def shap_summary(self) -> pd.DataFrame:
@@ -254,7 +254,7 @@ def test_format_helpers():
     assert p_value_text(float("nan")) == "n/a" and p_value_text(np.float64(0.5)) == "0.500"
     assert format_value(np.int64(1234567)) == "1,234,567" and format_value(np.float32(0.25)) == "0.250"
     assert format_value(np.bool_(False)) == "no" and format_value(pd.NA) == "n/a"
-    assert format_value(float("inf")) == "n/a" and format_value("Quarry Road") == "Quarry Road"
+    assert format_value(float("inf")) == "n/a" and format_value("Quevrondel") == "Quevrondel"
 
 
 # -- other reports ------------------------------------------------------------------------------------------

@@ -23,7 +23,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402  (only to check that the report leaves pyplot alone)
 
 RULES = ("skimmed_hint", "hasty_error", "idle_pause")
-SCHOOLS = ("Harbourview", "Cedar Hill", "Marsh Lane")  # fictional schools of a fictional practice platform
+SCHOOLS = ("Hovquennel", "Cazvirro", "Murtelvax")  # fictional schools of a fictional practice platform
 CLASS_METRICS = ("auc", "kappa", "average_precision", "log_loss", "brier")
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 

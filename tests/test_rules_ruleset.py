@@ -13,7 +13,7 @@ from rulefeat.errors import RuleCheckError, RuleSyntaxError
 from rulefeat.rules import DEFAULT_REPORT, SUMMARIES, Rule, RuleSet
 
 RULES_TOML = '''
-# Rules of the fictional Lumen Lane tutor
+# Rules of the fictional Zorbleth tutor
 [rules.skimmed_hint]
 means = "hint skimming"
 why   = "A second hint on the same step within 3 s of the first is too fast to have been read."
