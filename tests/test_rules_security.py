@@ -1,5 +1,7 @@
-"""Rule text is data (contract 4): hostile text fails fast with the library's own errors, and nothing
-in the rule package can hand text to Python's evaluation machinery."""
+"""Rules are read, never run as code (contract 4 in DEVELOPERS.md).
+
+Hostile text fails fast with the library's own errors, and nothing in the rule package can hand text to Python's
+evaluation machinery."""
 
 import re
 import time

@@ -4,7 +4,7 @@ State is stored per category code of the ``per`` field.  Sub-logs share their
 parent's categories, so a code means the same key in the training log and in
 any log evaluated later.  Keys with fewer than ``min_count`` training values,
 keys never seen in training and events whose key is missing use the overall
-training statistic (DESIGN.md contract 2).
+training statistic (only the training students' events are learned from; "Contracts" in DEVELOPERS.md).
 """
 
 from __future__ import annotations
