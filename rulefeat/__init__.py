@@ -9,9 +9,17 @@ from .errors import (
     RulefeatError,
     RulefeatWarning,
     RuleSyntaxError,
+    SimulationError,
     UnitError,
 )
-from .evaluate import diagnose, incremental_value, make_detector
+from .evaluate import (
+    GuardWarning,
+    IncrementalValueReport,
+    RuleDiagnostics,
+    diagnose,
+    incremental_value,
+    make_detector,
+)
 from .log import EventLog, LogIssue, read_events
 from .log_features import LogFeatures
 from .rule_features import RuleFeatures
@@ -30,6 +38,8 @@ __all__ = [
     "incremental_value",
     "make_detector",
     "diagnose",
+    "IncrementalValueReport",
+    "RuleDiagnostics",
     "RulefeatError",
     "LogSchemaError",
     "UnitError",
@@ -37,6 +47,9 @@ __all__ = [
     "RuleCheckError",
     "EvaluationError",
     "ParameterError",
+    "SimulationError",
     "RulefeatWarning",
     "LogRepairWarning",
+    "GuardWarning",
 ]
+
