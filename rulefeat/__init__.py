@@ -13,9 +13,9 @@ from .errors import (
 )
 from .evaluate import diagnose, incremental_value, make_detector
 from .log import EventLog, LogIssue, read_events
-from .log_features import LogFeatures
-from .rule_features import RuleFeatures
+from .mined.transformer import LogFeatures
 from .rules import Rule, RuleSet
+from .rules.transformer import RuleFeatures
 
 __version__ = "0.1.0"
 
