@@ -3,6 +3,6 @@
 The code lives in :mod:`rulefeat.mined.mastery`, beside the mined features that use it.
 """
 
-from .mined.mastery import BKT, BKTParams, MasteryTrace
+from ..mined.mastery import BKT, BKTParams, MasteryTrace
 
 __all__ = ["BKT", "BKTParams", "MasteryTrace"]
