@@ -25,11 +25,11 @@ import numpy as np
 import pandas as pd
 
 from rulefeat import EventLog, LogRepairWarning
-from rulefeat.log_features import LogFeatures
-from rulefeat.mastery import BKT
+from rulefeat.mined.mastery import BKT
+from rulefeat.mined.transformer import LogFeatures
 from rulefeat.simulate import tutor_logs
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests" / "mined"))
 from test_mined_reference import bkt_params_of, event_table, reference  # noqa: E402
 
 BASE_STUDENTS = 2000  # about 1.1M events with the simulator's defaults

@@ -31,7 +31,7 @@ import pandas as pd
 import rulefeat
 from rulefeat.errors import LogRepairWarning
 from rulefeat.evaluate import diagnose, incremental_value
-from rulefeat.evaluate.engine import demo_rules_path
+from rulefeat.evaluate.value.engine import demo_rules_path
 
 
 def parse_args(argv=None) -> argparse.Namespace:

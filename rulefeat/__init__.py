@@ -21,9 +21,9 @@ from .evaluate import (
     make_detector,
 )
 from .log import EventLog, LogIssue, read_events
-from .log_features import LogFeatures
-from .rule_features import RuleFeatures
+from .mined.transformer import LogFeatures
 from .rules import Rule, RuleSet
+from .rules.transformer import RuleFeatures
 
 __version__ = "0.1.0"
 

@@ -15,7 +15,7 @@ from sklearn.utils.validation import check_is_fitted
 
 from ._aggregate import Aggregator
 from .errors import ParameterError, UnitError
-from .log import EventLog
+from .log.eventlog import EventLog
 from .units import UNIT_NAMES, Unit, as_unit
 
 

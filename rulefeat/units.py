@@ -30,10 +30,10 @@ import numpy as np
 import pandas as pd
 
 from . import _frame
-from ._log_derive import ranges_to_index
 from ._text import did_you_mean, show_rows
 from .errors import RulefeatWarning, UnitError
-from .log import EventLog
+from .log.derive import ranges_to_index
+from .log.eventlog import EventLog
 
 __all__ = ["Unit", "Window", "LastActions", "Step", "Problem", "Session", "Student", "UnitIndex",
            "as_unit", "UNIT_NAMES"]

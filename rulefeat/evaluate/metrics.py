@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import RulefeatWarning
-from . import stats
+from ..stats import inference as stats
 
 __all__ = ["Metric", "METRICS", "CLASSIFICATION_METRICS", "REGRESSION_METRICS", "PRIMARY", "metric_names",
            "weighted_auc", "weighted_kappa", "weighted_average_precision", "weighted_log_loss",

@@ -14,8 +14,8 @@ from functools import cached_property
 import numpy as np
 
 from .._aggregate import Aggregator
-from .._log_derive import ranges_to_index
-from ..log import EventLog
+from ..log.derive import ranges_to_index
+from ..log.eventlog import EventLog
 from ..units import UnitIndex
 
 #: Sequence tokens of an event: right attempt, wrong attempt, hint, anything else.

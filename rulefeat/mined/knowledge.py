@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..mastery import BKT
 from . import _events as ev
 from ._events import Settings, TrainingEvents, UnitView
+from .mastery import BKT
 
 FEATURES = ("p_known_at_start", "p_known_at_end", "p_known_mean", "p_known_change",
             "mastered_attempt_share", "surprise_mean")

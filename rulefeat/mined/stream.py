@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..log import EventLog
+from ..log.eventlog import EventLog
 from . import _events as ev
 from ._events import TOKEN_NAMES, UnitView, ratio
 

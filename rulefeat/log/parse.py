@@ -1,0 +1,234 @@
+"""Column-by-column parsing of a raw event table into typed numpy arrays.
+
+Each parser either returns arrays or raises :class:`LogSchemaError` naming the
+column and the first offending rows.  Repairs that keep rows (and so must be
+reported, not raised) are returned to the caller as :class:`LogIssue` objects.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .. import _frame
+from .._text import did_you_mean, show_rows
+from ..errors import LogSchemaError
+
+CANONICAL = (
+    "student", "time", "action", "correct", "problem", "step", "skill",
+    "session", "duration", "population",
+)
+REQUIRED = ("student", "time", "action")
+CATEGORY_FIELDS = ("problem", "step", "skill", "population")
+BASE_ACTIONS = ("attempt", "hint")
+DERIVED = ("gap", "step_position", "problem_position")
+
+
+@dataclass(frozen=True)
+class LogIssue:
+    """One kind of repair or flag the event log applied to its input.
+
+    ``rows`` are 0-based positions in the input table.
+    """
+
+    what: str
+    count: int
+    rows: np.ndarray = field(repr=False)
+    action: str
+
+    def __str__(self) -> str:
+        return f"{self.what}: {self.count} ({self.action}; {show_rows(self.rows)})"
+
+
+def _fail(column: str, message: str, rows=None, raw: pd.Series | None = None) -> LogSchemaError:
+    where = ""
+    if rows is not None and len(rows):
+        rows = np.asarray(rows)[:5]
+        shown = ", ".join(f"row {r}: {raw.iloc[r]!r}" for r in rows) if raw is not None else show_rows(rows)
+        where = f" First offending rows: {shown}."
+    return LogSchemaError(f"EventLog: column {column!r}: {message}.{where}")
+
+
+def resolve_columns(data: pd.DataFrame, columns: dict | None) -> dict[str, str]:
+    """Map canonical field -> input column, checking the mapping and the required fields."""
+    if not isinstance(data, pd.DataFrame):
+        raise LogSchemaError(f"EventLog: expected a pandas DataFrame of events, got {type(data).__name__}.")
+    names = [str(c) for c in data.columns]
+    dup = sorted({n for n in names if names.count(n) > 1})
+    if dup:
+        raise LogSchemaError(f"EventLog: column names must be unique; {dup!r} appear more than once. Rename them.")
+    if len(data) == 0:
+        raise LogSchemaError("EventLog: the event table is empty (0 rows); there is nothing to build a log from.")
+    mapping = _check_mapping(columns or {}, names)
+    for fld in CANONICAL:
+        if fld not in mapping and fld in names and fld not in mapping.values():
+            mapping[fld] = fld
+    for fld in REQUIRED:
+        if fld not in mapping:
+            raise LogSchemaError(
+                f"EventLog: required field {fld!r} is missing: no column is named {fld!r} and the "
+                f"'columns' mapping does not name one.{did_you_mean(fld, names)} "
+                f"Pass columns={{{fld!r}: '<your column>'}}. Columns given: {names!r}."
+            )
+    for fld, col in mapping.items():
+        if col != fld and fld in names and fld not in mapping.values():
+            raise LogSchemaError(
+                f"EventLog: field {fld!r} is mapped to column {col!r}, but the table also has a column "
+                f"named {fld!r}; drop or rename one of them so the field is unambiguous."
+            )
+    return mapping
+
+
+def _check_mapping(columns: dict, names: list[str]) -> dict[str, str]:
+    mapping: dict[str, str] = {}
+    seen: dict[str, str] = {}
+    for fld, col in columns.items():
+        if fld not in CANONICAL:
+            raise LogSchemaError(
+                f"EventLog: unknown field {fld!r} in 'columns'.{did_you_mean(fld, CANONICAL)} "
+                f"Fields are {list(CANONICAL)!r}; other columns are kept as they are without mapping."
+            )
+        if col not in names:
+            raise LogSchemaError(
+                f"EventLog: 'columns' maps {fld!r} to {col!r}, which is not a column of the table."
+                f"{did_you_mean(col, names)} Columns given: {names!r}."
+            )
+        if col in seen:
+            raise LogSchemaError(
+                f"EventLog: 'columns' points both {seen[col]!r} and {fld!r} at column {col!r}; "
+                "each field needs its own column."
+            )
+        seen[col] = fld
+        mapping[fld] = col
+    return mapping
+
+
+def parse_student(raw: pd.Series, column: str):
+    missing = _frame.missing_mask(raw)
+    if missing.any():
+        raise _fail(column, f"{int(missing.sum())} rows have no student id; every event needs one",
+                    np.flatnonzero(missing))
+    return _frame.factorize(raw)
+
+
+def parse_time(raw: pd.Series, column: str, time_unit: str):
+    """Return (seconds relative to origin, origin, kind) with kind 'datetime' or 'number'."""
+    missing = _frame.missing_mask(raw)
+    if missing.any():
+        raise _fail(column, f"{int(missing.sum())} rows have no time", np.flatnonzero(missing), raw)
+    if _frame.is_numeric(raw):
+        if time_unit not in _frame.TIME_UNITS:
+            raise LogSchemaError(
+                f"EventLog: time_unit must be one of {list(_frame.TIME_UNITS)!r}. Got {time_unit!r} instead."
+            )
+        seconds = _frame.to_float(raw) * _frame.TIME_UNITS[time_unit]
+        bad = ~np.isfinite(seconds)
+        if bad.any():
+            raise _fail(column, "times must be finite numbers", np.flatnonzero(bad), raw)
+        return seconds, 0.0, "number"
+    parsed = raw if _frame.is_datetime(raw) else _frame.parse_datetimes(raw)
+    ns = _frame.datetime_ns(parsed)
+    bad = ns == np.iinfo(np.int64).min
+    if bad.any():
+        raise _fail(
+            column,
+            f"{int(bad.sum())} times could not be parsed; give datetimes, ISO 8601 text "
+            "(e.g. '2026-03-02T09:15:00') or numbers of seconds with time_unit",
+            np.flatnonzero(bad), raw,
+        )
+    origin = int(ns.min())
+    return (ns - origin).astype(np.float64) / _frame.NS_PER_SECOND, np.datetime64(origin, "ns"), "datetime"
+
+
+def parse_action(raw: pd.Series, column: str, actions: dict | None):
+    missing = _frame.missing_mask(raw)
+    if missing.any():
+        raise _fail(column, f"{int(missing.sum())} rows have no action kind", np.flatnonzero(missing))
+    codes, cats = _frame.factorize(raw)
+    rename = {}
+    for kind, values in (actions or {}).items():
+        for value in [values] if isinstance(values, str) else list(values):
+            rename[str(value)] = str(kind)
+    labels = [rename.get(str(c), str(c)) for c in cats]  # a loop over labels, not rows
+    full = sorted(set(labels) | set(BASE_ACTIONS))
+    remap = np.array([full.index(lbl) for lbl in labels], dtype=np.int32)
+    codes = remap[codes] if len(remap) else codes.astype(np.int32)
+    unknown = np.isin(codes, [full.index(k) for k in full if k not in BASE_ACTIONS])
+    return codes.astype(np.int32), pd.Index(full, dtype=object), unknown
+
+
+def parse_correct(raw: pd.Series, column: str, correct_values):
+    """Return int8 codes: 1 correct, 0 wrong, -1 missing."""
+    missing = _frame.missing_mask(raw)
+    out = np.full(len(raw), -1, dtype=np.int8)
+    present = ~missing
+    if correct_values is not None:
+        yes, no = _pair(correct_values)
+        text = raw.astype("string")
+        is_yes = (text == str(yes)).fillna(False).to_numpy(bool)
+        is_no = (text == str(no)).fillna(False).to_numpy(bool)
+        bad = present & ~is_yes & ~is_no
+        if bad.any():
+            raise _fail(column, f"values must be {yes!r} (correct) or {no!r} (wrong) as declared in "
+                        "correct_values", np.flatnonzero(bad), raw)
+        out[is_yes] = 1
+        out[is_no] = 0
+        return out
+    if _frame.is_boolean(raw):
+        return _frame.bool_codes(raw)
+    if _frame.is_numeric(raw):
+        num = _frame.to_float(raw)
+        bad = present & ~np.isin(num, (0.0, 1.0))
+        if bad.any():
+            raise _fail(column, "numeric values must be 0 or 1; for other codings pass "
+                        "correct_values=(<correct value>, <wrong value>)", np.flatnonzero(bad), raw)
+        out[present] = num[present].astype(np.int8)
+        return out
+    text = raw.astype("string").str.lower()
+    is_yes = text.isin(["true", "1"]).to_numpy(bool)
+    is_no = text.isin(["false", "0"]).to_numpy(bool)
+    bad = present & ~is_yes & ~is_no
+    if bad.any():
+        raise _fail(column, "text values must be 'true'/'false'; for other codings pass "
+                    "correct_values=(<correct value>, <wrong value>)", np.flatnonzero(bad), raw)
+    out[is_yes] = 1
+    out[is_no] = 0
+    return out
+
+
+def _pair(correct_values):
+    try:
+        yes, no = correct_values
+    except (TypeError, ValueError):
+        raise LogSchemaError(
+            f"EventLog: correct_values must be a pair (<correct value>, <wrong value>). Got {correct_values!r}."
+        ) from None
+    return yes, no
+
+
+def parse_duration(raw: pd.Series, column: str):
+    seconds = _frame.to_float(raw)
+    bad_text = ~_frame.missing_mask(raw) & np.isnan(seconds)
+    if bad_text.any():
+        raise _fail(column, "durations must be numbers of seconds", np.flatnonzero(bad_text), raw)
+    neg = seconds < 0
+    if neg.any():
+        raise _fail(column, f"{int(neg.sum())} durations are negative; durations are seconds >= 0",
+                    np.flatnonzero(neg), raw)
+    return seconds
+
+
+def parse_extra(raw: pd.Series):
+    """Return (array, kind, categories) for a column the log keeps as it is."""
+    if _frame.is_boolean(raw):
+        return _frame.bool_codes(raw), "bool", None
+    if _frame.is_numeric(raw):
+        return _frame.to_float(raw), "number", None
+    if _frame.is_datetime(raw):
+        ns = _frame.datetime_ns(raw).astype(np.float64)
+        ns[ns == float(np.iinfo(np.int64).min)] = np.nan
+        return ns / _frame.NS_PER_SECOND, "number", None
+    codes, cats = _frame.factorize(raw)
+    return codes, "category", cats
