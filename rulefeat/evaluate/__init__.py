@@ -11,15 +11,8 @@ from .metrics import METRICS
 from .models import default_model, thread_budget
 from .splits import GROUP_AWARE
 from .value import incremental_value, incremental_value_precomputed, make_detector
+from .value.report import IncrementalValueReport
 
 __all__ = ["diagnose", "RuleDiagnostics", "incremental_value", "incremental_value_precomputed", "make_detector", "default_model",
            "thread_budget", "GuardWarning", "METRICS", "GROUP_AWARE", "IncrementalValueReport"]
 
-
-def __getattr__(name):
-    # The report class is imported on first use, so the engine works while the report module is optional.
-    if name == "IncrementalValueReport":
-        from .value.report import IncrementalValueReport
-
-        return IncrementalValueReport
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -48,7 +48,7 @@ def rule_of_column(column: str, rule_names) -> str | None:
     return max(hits, key=len) if hits else None
 
 
-def _names(estimator, Z, prefix: str) -> list:
+def column_names(estimator, Z, prefix: str) -> list:
     if isinstance(Z, pd.DataFrame):
         base = [str(c) for c in Z.columns]
     elif hasattr(estimator, "get_feature_names_out"):
@@ -58,7 +58,7 @@ def _names(estimator, Z, prefix: str) -> list:
     return [f"{prefix}__{b}" for b in base]
 
 
-def _dense(Z) -> np.ndarray:
+def dense(Z) -> np.ndarray:
     if hasattr(Z, "toarray"):
         Z = Z.toarray()
     return np.asarray(Z, dtype=np.float64)
@@ -77,7 +77,7 @@ class TransformerSource:
             est = clone(prototype)
             Ztr = est.fit_transform(Xtr, y_train)
             Zte = est.transform(Xte)
-            blocks.append((_names(est, Ztr, prefix), _dense(Ztr), _dense(Zte)))
+            blocks.append((column_names(est, Ztr, prefix), dense(Ztr), dense(Zte)))
         (mined_names, mtr, mte), (rule_cols, rtr, rte) = blocks
         rules = {r: [] for r in self.rule_names}
         for j, name in enumerate(rule_cols):
@@ -154,7 +154,7 @@ class Outcome:
     seconds: dict = field(default_factory=dict)
 
 
-def _predict(est, Z: np.ndarray, task: str) -> np.ndarray:
+def predict_scores(est, Z: np.ndarray, task: str) -> np.ndarray:
     if task == "regression":
         return np.asarray(est.predict(Z), dtype=float).ravel()
     classes = list(getattr(est, "classes_", [0, 1]))
@@ -176,8 +176,8 @@ def _fit_predict(job: Job, ff: FoldFeatures, cols: np.ndarray, y_tr: np.ndarray,
     est = clone(job.model)
     try:
         est.fit(Ztr, y_tr.astype(int) if classification else y_tr)
-        test = _predict(est, ff.test[:, cols], job.task)
-        train = _predict(est, Ztr, job.task) if classification else None
+        test = predict_scores(est, ff.test[:, cols], job.task)
+        train = predict_scores(est, Ztr, job.task) if classification else None
     except EvaluationError:
         raise
     except Exception as exc:

@@ -20,8 +20,9 @@ from threadpoolctl import threadpool_limits
 
 from ..._aggregate import Aggregator
 from ...errors import EvaluationError
-from ..folds import _dense, _names, _predict
+from ..folds import column_names, dense, predict_scores
 from ..splits import Fold
+from .attribution import tree_shap
 from .inputs import WHERE
 
 __all__ = ["FoldJob", "FoldResult", "primary_summary", "run_folds"]
@@ -87,11 +88,11 @@ def _features(job: FoldJob, fold: Fold) -> _Features:
     Xtr, Xte, y_tr = job.X.iloc[fold.train], job.X.iloc[fold.test], job.y[fold.train]
     mined = clone(job.mined)
     raw = mined.fit_transform(Xtr, y_tr)
-    names = _names(mined, raw, "mined")
-    mined_test = _dense(mined.transform(Xte))
+    names = column_names(mined, raw, "mined")
+    mined_test = dense(mined.transform(Xte))
     rules = clone(job.rules)
     rules_train = rules.fit_transform(Xtr, y_tr)
-    return _Features(_dense(raw), mined_test, names, rules_train, rules.transform(Xte), rules)
+    return _Features(dense(raw), mined_test, names, rules_train, rules.transform(Xte), rules)
 
 
 def _fit_predict(prototype, Z_train, target, Z_test, kind: str, where: str) -> np.ndarray:
@@ -101,7 +102,7 @@ def _fit_predict(prototype, Z_train, target, Z_test, kind: str, where: str) -> n
     est = clone(prototype)
     try:
         est.fit(Z_train, target.astype(int) if kind == "classification" else target)
-        return _predict(est, Z_test, kind)
+        return predict_scores(est, Z_test, kind)
     except EvaluationError:
         raise
     except Exception as exc:
@@ -144,8 +145,6 @@ def _redundancy(job, feats, counts_train, columns, where) -> tuple[dict, dict]:
 
 
 def _shap(job, feats, y_train, seed: int, where: str) -> dict:
-    from .attribution import tree_shap
-
     rule_names = [str(c) for c in feats.rules_train.columns]
     names = feats.mined_names + rule_names
     dupes = sorted({n for n in names if names.count(n) > 1})

@@ -17,6 +17,7 @@ import pandas as pd
 from ...errors import EvaluationError
 from ...report.markdown import CAUTIONS, interval, markdown_table, number, p_text, signed
 from ...report.markdown import count as count_text
+from ...report.plain import to_plain
 
 __all__ = ["RuleDiagnostics"]
 
@@ -43,9 +44,7 @@ _TABLE = {
 
 def _plain(value, path: str = "results"):
     """A JSON-ready copy (the evaluation report's own conversion, named for diagnostics)."""
-    from ..value.report import _plain as plain
-
-    return plain(value, path, where=_WHERE)
+    return to_plain(value, path, where=_WHERE)
 
 
 def _check(results) -> dict:

@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import copy
 import json
-import math
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 
@@ -21,6 +20,7 @@ import pandas as pd
 from ..._text import did_you_mean
 from ...errors import EvaluationError
 from ...report.markdown import LOWER_IS_BETTER, METRIC_LABELS, metric_order, render_markdown, signed, tables
+from ...report.plain import to_plain
 
 __all__ = ["IncrementalValueReport"]
 
@@ -73,26 +73,6 @@ def _check_oof(oof, name: str, columns: Sequence[str]) -> pd.DataFrame:
         raise EvaluationError(f"IncrementalValueReport: {name!r} lacks the columns {missing}; it has "
                               f"{list(oof.columns)}.")
     return oof
-
-
-# -- JSON ----------------------------------------------------------------------------------------
-def _plain(value, path: str = "results", where: str = "IncrementalValueReport.to_json"):
-    """A JSON-ready copy: numpy scalars to Python, NaN and infinities to None, tuples to lists."""
-    if isinstance(value, Mapping):
-        return {str(k): _plain(v, f"{path}[{k!r}]", where) for k, v in value.items()}
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [_plain(v, f"{path}[{i}]", where) for i, v in enumerate(list(value))]
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if value is None or isinstance(value, (str, int, bool)):
-        return value
-    if value is pd.NA or value is pd.NaT:
-        return None
-    raise EvaluationError(f"{where}: {path} holds a {type(value).__name__} "
-                          f"({value!r}), which JSON cannot hold; results may contain only str, int, float, "
-                          "bool, None, lists and dicts.")
 
 
 def _plots():
@@ -325,7 +305,7 @@ class IncrementalValueReport:
         indent : int or None
             Spaces per level; None writes one line.
         """
-        return json.dumps(_plain(self.to_dict()), indent=indent, sort_keys=True, allow_nan=False,
+        return json.dumps(to_plain(self.to_dict()), indent=indent, sort_keys=True, allow_nan=False,
                           ensure_ascii=False)
 
     @classmethod
