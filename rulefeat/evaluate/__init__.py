@@ -5,13 +5,13 @@
 (1, 2)
 """
 
+from ..report.value import IncrementalValueReport
 from .diagnose import RuleDiagnostics, diagnose
 from .guards import GuardWarning
 from .metrics import METRICS
 from .models import default_model, thread_budget
 from .splits import GROUP_AWARE
 from .value import incremental_value, incremental_value_precomputed, make_detector
-from .value.report import IncrementalValueReport
 
 __all__ = ["diagnose", "RuleDiagnostics", "incremental_value", "incremental_value_precomputed", "make_detector", "default_model",
            "thread_budget", "GuardWarning", "METRICS", "GROUP_AWARE", "IncrementalValueReport"]

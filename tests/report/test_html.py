@@ -27,8 +27,8 @@ import rulefeat
 from rulefeat.errors import EvaluationError, LogRepairWarning
 from rulefeat.evaluate import incremental_value_precomputed
 from rulefeat.evaluate.value.engine import demo_rules_path
-from rulefeat.evaluate.value.report import IncrementalValueReport
 from rulefeat.report.html import format_value, html_view, p_value_text, save_html
+from rulefeat.report.value import IncrementalValueReport
 from rulefeat.simulate import tutor_logs
 
 matplotlib.use("Agg")

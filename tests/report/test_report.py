@@ -17,7 +17,7 @@ from sklearn.metrics import roc_auc_score, roc_curve
 import rulefeat.report.figures as plots
 import rulefeat.report.markdown as report_text
 from rulefeat.errors import EvaluationError
-from rulefeat.evaluate.value.report import IncrementalValueReport
+from rulefeat.report.value import IncrementalValueReport
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402  (only to check that the report leaves pyplot alone)

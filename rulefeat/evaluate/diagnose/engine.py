@@ -86,6 +86,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ...errors import EvaluationError
+from ...report.diagnostics import RuleDiagnostics
 from ..models import default_model, model_threads, thread_budget
 from ..seeds import Seeds
 from ..splits import student_folds
@@ -102,7 +103,6 @@ from .inputs import (
     rules_transformer,
 )
 from .pool import pool, pool_shap, shap_groups, student_table, unit_table
-from .report import RuleDiagnostics
 
 __all__ = ["diagnose", "RuleDiagnostics"]
 

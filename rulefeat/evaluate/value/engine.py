@@ -19,6 +19,7 @@ from sklearn.pipeline import FeatureUnion, Pipeline
 from ... import _frame
 from ..._text import did_you_mean
 from ...errors import EvaluationError
+from ...report.value import IncrementalValueReport
 from ..folds import Job, PrecomputedSource, Task, TransformerSource, run_all
 from ..inputs import WHERE, prepare, prepare_precomputed
 from ..models import available_cores, default_model, model_threads, thread_budget
@@ -26,7 +27,6 @@ from ..seeds import Seeds
 from ..splits import check_splitter, population_folds, student_folds
 from ..transformers import mined_transformer, rules_transformer
 from . import assemble as _assemble
-from .report import IncrementalValueReport
 
 __all__ = ["incremental_value", "incremental_value_precomputed", "make_detector"]
 

@@ -17,10 +17,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ..._text import did_you_mean
-from ...errors import EvaluationError
-from ...report.markdown import LOWER_IS_BETTER, METRIC_LABELS, metric_order, render_markdown, signed, tables
-from ...report.plain import to_plain
+from .._text import did_you_mean
+from ..errors import EvaluationError
+from .markdown import LOWER_IS_BETTER, METRIC_LABELS, metric_order, render_markdown, signed, tables
+from .plain import to_plain
 
 __all__ = ["IncrementalValueReport"]
 
@@ -77,7 +77,7 @@ def _check_oof(oof, name: str, columns: Sequence[str]) -> pd.DataFrame:
 
 def _plots():
     """The figures module, imported on first use: matplotlib is slow to import and tables do not need it."""
-    from ...report import figures as plots
+    from . import figures as plots
 
     return plots
 
@@ -350,7 +350,7 @@ class IncrementalValueReport:
 
     def save_html(self, path: str | Path, diagnostics=None) -> Path:
         """Write one self-contained HTML page (figures embedded); see :func:`rulefeat.report.html.save_html`."""
-        from ...report.html import save_html
+        from .html import save_html
 
         return save_html(self, path, diagnostics=diagnostics)
 

@@ -14,10 +14,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ...errors import EvaluationError
-from ...report.markdown import CAUTIONS, interval, markdown_table, number, p_text, signed
-from ...report.markdown import count as count_text
-from ...report.plain import to_plain
+from ..errors import EvaluationError
+from .markdown import CAUTIONS, interval, markdown_table, number, p_text, signed
+from .markdown import count as count_text
+from .plain import to_plain
 
 __all__ = ["RuleDiagnostics"]
 
@@ -189,7 +189,7 @@ class RuleDiagnostics:
 
         Empty when SHAP was not computed; dependence plots need the pooled SHAP tables (not kept in JSON).
         """
-        from ...report.diagnose_figures import plot_dependence_of, plot_shap_per_rule, plot_shap_share
+        from .diagnose_figures import plot_dependence_of, plot_shap_per_rule, plot_shap_share
 
         shap = self._results["shap"]
         if not shap.get("available"):
