@@ -15,9 +15,10 @@ import numpy as np
 import pandas as pd
 
 from ..errors import EvaluationError
-from .markdown import CAUTIONS, interval, markdown_table, number, p_text, signed
-from .markdown import count as count_text
+from .markdown import markdown_table
 from .plain import to_plain
+from .tables import CAUTIONS, interval, number, p_text, signed
+from .tables import count as count_text
 
 __all__ = ["RuleDiagnostics"]
 

@@ -19,8 +19,9 @@ import pandas as pd
 
 from .._text import did_you_mean
 from ..errors import EvaluationError
-from .markdown import LOWER_IS_BETTER, METRIC_LABELS, metric_order, render_markdown, signed, tables
+from .markdown import render_markdown
 from .plain import to_plain
+from .tables import LOWER_IS_BETTER, METRIC_LABELS, metric_order, signed, tables
 
 __all__ = ["IncrementalValueReport"]
 
@@ -254,8 +255,8 @@ class IncrementalValueReport:
         return comp["effect"]
 
     def tables(self) -> dict[str, pd.DataFrame]:
-        """Display-ready tables (strings) shared by the Markdown and HTML renderings."""
-        return tables(self)
+        """Display-ready tables (strings), as the Markdown and HTML renderings show them."""
+        return {name: table.frame() for name, table in tables(self).items()}
 
     # -- figures ---------------------------------------------------------------------------------
     def plot_roc(self, variants: Sequence[str] = VARIANTS, repeat: int = 0):

@@ -327,7 +327,7 @@ def test_regression_report_renders_without_roc(tmp_path):
     rows = {row[0][1]: row for row in _cells(html, "value")}
     assert [k for k, _ in rows["combined"]] == ["key"] + ["num"] * 6  # no DeLong column for R²
     assert rows["combined"][3][1] == f"{report.summary().set_index('variant').loc['combined', 'r2_delta']:+.3f}"
-    assert "R², folds mean ± sd" in page.all_text() and "RMSE ↓" in page.all_text()
+    assert "R² (folds, mean ± sd)" in page.all_text() and "RMSE (lower is better)" in page.all_text()
 
 
 # -- bad inputs ----------------------------------------------------------------------------------------------

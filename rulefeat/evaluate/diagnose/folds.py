@@ -7,12 +7,9 @@ describes its held-out units and students, so pooling the folds gives out-of-fol
 from __future__ import annotations
 
 import re
-import sys
-import time
 import warnings
 from dataclasses import dataclass, field
 
-import joblib
 import numpy as np
 import pandas as pd
 from sklearn.base import clone
@@ -20,7 +17,7 @@ from threadpoolctl import threadpool_limits
 
 from ..._aggregate import Aggregator
 from ...errors import EvaluationError
-from ..folds import column_names, dense, predict_scores
+from ..folds import column_names, dense, predict_scores, run_parallel
 from ..splits import Fold
 from .attribution import tree_shap
 from .inputs import WHERE
@@ -205,14 +202,5 @@ def run_fold(job: FoldJob, fold: Fold, seed: int) -> FoldResult:
 
 
 def run_folds(job: FoldJob, folds: list, seeds: list, workers: int, verbose: int) -> list:
-    """Every fold through ``joblib.Parallel`` (so ``joblib.parallel_config`` applies), in fold order."""
-    start, out = time.perf_counter(), []
-    parallel = joblib.Parallel(n_jobs=workers, return_as="generator")
-    for result in parallel(joblib.delayed(run_fold)(job, f, s) for f, s in zip(folds, seeds, strict=True)):
-        out.append(result)
-        if verbose:
-            sys.stderr.write(f"\r{WHERE}: {len(out)}/{len(folds)} folds, {time.perf_counter() - start:.1f} s")
-            if len(out) == len(folds):
-                sys.stderr.write("\n")
-            sys.stderr.flush()
-    return out
+    """Every fold of :func:`diagnose` through the evaluation's one fold loop, in fold order."""
+    return run_parallel(run_fold, [(job, f, s) for f, s in zip(folds, seeds, strict=True)], workers, verbose, WHERE)

@@ -132,10 +132,10 @@ def _report(results, oof, oof_transfer):
     return IncrementalValueReport(results, oof, oof_transfer)
 
 
-def compute_incremental_value(log, units, y, rules, model=None, cv=5, repeats=1, population=None, unit="window",
-                              mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000,
+def compute_incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, population=None,
+                              unit="window", mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000,
                               alternative="greater", learning_curve=(0.25, 0.5, 1.0), ablation=True,
-                              transfer=True, task="auto", *, command=None):
+                              transfer=True, task="auto", command=None):
     """Same as :func:`incremental_value` but returns ``(results, oof, oof_transfer)`` instead of the report."""
     t0 = time.perf_counter()
     settings = _settings(cv, repeats, n_boot, alternative, learning_curve, ablation, transfer, verbose,
@@ -151,9 +151,9 @@ def compute_incremental_value(log, units, y, rules, model=None, cv=5, repeats=1,
                      data, [], command, t0)
 
 
-def incremental_value(log, units, y, rules, model=None, cv=5, repeats=1, population=None, unit="window",
+def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, population=None, unit="window",
                       mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000, alternative="greater",
-                      learning_curve=(0.25, 0.5, 1.0), ablation=True, transfer=True, task="auto", *,
+                      learning_curve=(0.25, 0.5, 1.0), ablation=True, transfer=True, task="auto",
                       command=None):
     """Student-grouped evaluation of how much expert rules add to mined log features.
 
@@ -331,7 +331,7 @@ task, command
         command=command))
 
 
-def make_detector(log, rules, unit="window", model=None, mined=None, random_state=None, *,
+def make_detector(log, rules, *, unit="window", model=None, mined=None, random_state=None,
                   task: str = "classification") -> Pipeline:
     """The combined detector to ship: ``Pipeline([features: FeatureUnion(mined, rules), model])``.
 
