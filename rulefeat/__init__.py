@@ -1,5 +1,6 @@
 """rulefeat: expert rules as scikit-learn features over tutoring logs, with student-grouped evaluation."""
 
+from ._version import __version__
 from .errors import (
     EvaluationError,
     LogRepairWarning,
@@ -25,9 +26,8 @@ from .mined.transformer import LogFeatures
 from .rules import Rule, RuleSet
 from .rules.transformer import RuleFeatures
 
-__version__ = "0.1.0"
-
 __all__ = [
+    "__version__",
     "EventLog",
     "LogIssue",
     "read_events",

@@ -28,6 +28,24 @@ def is_boolean(series: pd.Series) -> bool:
     return ptypes.is_bool_dtype(series.dtype)
 
 
+def is_number_dtype(dtype) -> bool:
+    """True for numeric dtypes, booleans included (pandas' own test)."""
+    return ptypes.is_numeric_dtype(dtype)
+
+
+def is_bool_dtype(dtype) -> bool:
+    return ptypes.is_bool_dtype(dtype)
+
+
+def is_float_dtype(dtype) -> bool:
+    return ptypes.is_float_dtype(dtype)
+
+
+def factorize_values(values, sort: bool) -> tuple[np.ndarray, pd.Index]:
+    """pandas' factorize as is: codes (-1 for missing) and the distinct values, sorted or in order of appearance."""
+    return pd.factorize(values, sort=sort)
+
+
 def bool_codes(series: pd.Series) -> np.ndarray:
     """int8 1/0 with -1 for missing, from a numpy or nullable boolean column."""
     if isinstance(series.dtype, pd.BooleanDtype):

@@ -5,6 +5,7 @@
 (1, 2)
 """
 
+from ..report.value import IncrementalValueReport
 from .diagnose import RuleDiagnostics, diagnose
 from .guards import GuardWarning
 from .metrics import METRICS
@@ -15,11 +16,3 @@ from .value import incremental_value, incremental_value_precomputed, make_detect
 __all__ = ["diagnose", "RuleDiagnostics", "incremental_value", "incremental_value_precomputed", "make_detector", "default_model",
            "thread_budget", "GuardWarning", "METRICS", "GROUP_AWARE", "IncrementalValueReport"]
 
-
-def __getattr__(name):
-    # The report class is imported on first use, so the engine works while the report module is optional.
-    if name == "IncrementalValueReport":
-        from .value.report import IncrementalValueReport
-
-        return IncrementalValueReport
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

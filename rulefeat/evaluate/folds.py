@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 from sklearn.base import clone
 from threadpoolctl import threadpool_limits
+from tqdm import tqdm
 
 from ..errors import EvaluationError
 from .guards import Finding, feature_findings
@@ -48,7 +49,7 @@ def rule_of_column(column: str, rule_names) -> str | None:
     return max(hits, key=len) if hits else None
 
 
-def _names(estimator, Z, prefix: str) -> list:
+def column_names(estimator, Z, prefix: str) -> list:
     if isinstance(Z, pd.DataFrame):
         base = [str(c) for c in Z.columns]
     elif hasattr(estimator, "get_feature_names_out"):
@@ -58,7 +59,7 @@ def _names(estimator, Z, prefix: str) -> list:
     return [f"{prefix}__{b}" for b in base]
 
 
-def _dense(Z) -> np.ndarray:
+def dense(Z) -> np.ndarray:
     if hasattr(Z, "toarray"):
         Z = Z.toarray()
     return np.asarray(Z, dtype=np.float64)
@@ -77,7 +78,7 @@ class TransformerSource:
             est = clone(prototype)
             Ztr = est.fit_transform(Xtr, y_train)
             Zte = est.transform(Xte)
-            blocks.append((_names(est, Ztr, prefix), _dense(Ztr), _dense(Zte)))
+            blocks.append((column_names(est, Ztr, prefix), dense(Ztr), dense(Zte)))
         (mined_names, mtr, mte), (rule_cols, rtr, rte) = blocks
         rules = {r: [] for r in self.rule_names}
         for j, name in enumerate(rule_cols):
@@ -154,7 +155,7 @@ class Outcome:
     seconds: dict = field(default_factory=dict)
 
 
-def _predict(est, Z: np.ndarray, task: str) -> np.ndarray:
+def predict_scores(est, Z: np.ndarray, task: str) -> np.ndarray:
     if task == "regression":
         return np.asarray(est.predict(Z), dtype=float).ravel()
     classes = list(getattr(est, "classes_", [0, 1]))
@@ -176,8 +177,8 @@ def _fit_predict(job: Job, ff: FoldFeatures, cols: np.ndarray, y_tr: np.ndarray,
     est = clone(job.model)
     try:
         est.fit(Ztr, y_tr.astype(int) if classification else y_tr)
-        test = _predict(est, ff.test[:, cols], job.task)
-        train = _predict(est, Ztr, job.task) if classification else None
+        test = predict_scores(est, ff.test[:, cols], job.task)
+        train = predict_scores(est, Ztr, job.task) if classification else None
     except EvaluationError:
         raise
     except Exception as exc:
@@ -254,32 +255,21 @@ def run_task(job: Job, task: Task) -> Outcome:
                    {"featurize": t1 - t0, "fit": time.perf_counter() - t1})
 
 
-class _Progress:
-    """A one-line progress bar on stderr, redrawn from the main process as folds finish."""
+def run_parallel(function, arguments: list, workers: int, verbose: int, label: str) -> list:
+    """The one fold loop: ``function(*args)`` for each entry of ``arguments``, results in order.
 
-    def __init__(self, total: int, verbose: int, width: int = 30):
-        self.total, self.verbose, self.width, self.done = total, verbose, width, 0
-        self.start = time.perf_counter()
-
-    def step(self) -> None:
-        self.done += 1
-        if self.verbose < 1:
-            return
-        filled = int(self.width * self.done / max(self.total, 1))
-        bar = "#" * filled + "-" * (self.width - filled)
-        elapsed = time.perf_counter() - self.start
-        sys.stderr.write(f"\rincremental_value [{bar}] {self.done}/{self.total} folds, {elapsed:.1f} s")
-        if self.done == self.total:
-            sys.stderr.write("\n")
-        sys.stderr.flush()
+    Runs through ``joblib.Parallel`` (so ``joblib.parallel_config`` applies) and draws one tqdm progress bar on
+    stderr from the main process as folds finish, only when ``verbose >= 1``.
+    """
+    parallel = joblib.Parallel(n_jobs=workers, return_as="generator")
+    results = []
+    with tqdm(total=len(arguments), desc=label, unit="fold", disable=verbose < 1, file=sys.stderr) as bar:
+        for result in parallel(joblib.delayed(function)(*args) for args in arguments):
+            results.append(result)
+            bar.update()
+    return results
 
 
 def run_all(job: Job, tasks: list, workers: int, verbose: int) -> list:
-    """Run the tasks through ``joblib.Parallel`` (so ``joblib.parallel_config`` applies) in order."""
-    progress = _Progress(len(tasks), verbose)
-    outcomes = []
-    parallel = joblib.Parallel(n_jobs=workers, return_as="generator")
-    for outcome in parallel(joblib.delayed(run_task)(job, t) for t in tasks):
-        outcomes.append(outcome)
-        progress.step()
-    return outcomes
+    """Every task of :func:`incremental_value` through :func:`run_parallel`, in order."""
+    return run_parallel(run_task, [(job, t) for t in tasks], workers, verbose, "incremental_value")

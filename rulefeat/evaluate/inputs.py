@@ -7,8 +7,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .. import _frame
 from .._text import did_you_mean, show_rows
 from ..errors import EvaluationError
+from ..log.eventlog import EventLog
+from ..units import as_unit
 from .models import TASKS
 
 __all__ = ["Inputs", "read_target", "resolve_task", "prepare", "prepare_precomputed", "population_summary"]
@@ -80,7 +83,7 @@ def resolve_task(values: pd.Series, task: str, where: str = WHERE) -> tuple[str,
         distinct = np.unique(values.to_numpy())
     except TypeError as exc:
         raise EvaluationError(f"{where}: 'y' mixes value types that cannot be ordered.") from exc
-    numeric = pd.api.types.is_numeric_dtype(values.dtype) and not pd.api.types.is_bool_dtype(values.dtype)
+    numeric = _frame.is_number_dtype(values.dtype) and not _frame.is_bool_dtype(values.dtype)
     if task == "auto":
         task = _guess_task(values, distinct, numeric, where)
     if len(distinct) < 2:
@@ -103,7 +106,7 @@ def resolve_task(values: pd.Series, task: str, where: str = WHERE) -> tuple[str,
 def _guess_task(values, distinct, numeric, where) -> str:
     if len(distinct) <= 2:
         return "classification"
-    if numeric and (pd.api.types.is_float_dtype(values.dtype) or len(distinct) >= _MIN_REGRESSION_VALUES):
+    if numeric and (_frame.is_float_dtype(values.dtype) or len(distinct) >= _MIN_REGRESSION_VALUES):
         return "regression"
     raise EvaluationError(f"{where}: cannot tell whether 'y' ({len(distinct)} distinct values, dtype "
                           f"{values.dtype}) is a set of classes or a number to predict. Only binary "
@@ -111,12 +114,12 @@ def _guess_task(values, distinct, numeric, where) -> str:
                           "into two classes.")
 
 
-def _codes(labels: pd.Series) -> tuple[np.ndarray, list]:
-    codes, uniques = pd.factorize(labels, sort=True)
+def label_codes(labels: pd.Series) -> tuple[np.ndarray, list]:
+    codes, uniques = _frame.factorize_values(labels, sort=True)
     return codes.astype(np.int64), [str(u) for u in uniques]
 
 
-def _log_populations(log, student_codes: np.ndarray, notes: list) -> tuple[np.ndarray, list]:
+def log_populations(log, student_codes: np.ndarray, notes: list) -> tuple[np.ndarray, list]:
     """Each unit's population from the log: the population of its student's first event."""
     first, last = log.student_bounds()
     pop = log.values("population")
@@ -138,14 +141,14 @@ def _log_populations(log, student_codes: np.ndarray, notes: list) -> tuple[np.nd
 def _populations(units, population, log, log_codes, notes) -> tuple[np.ndarray, list, str | None]:
     if population is None:
         if log is not None and log.has("population"):
-            codes, names = _log_populations(log, log_codes, notes)
+            codes, names = log_populations(log, log_codes, notes)
             return codes, names, None
         return np.full(len(units), -1, dtype=np.int64), [], None
     if not isinstance(population, str) or population not in units.columns:
         cols = [str(c) for c in units.columns]
         raise EvaluationError(f"The 'population' parameter of {WHERE} must name a column of units (or be None to "
                               f"use the log's population field). Got {population!r}.{did_you_mean(str(population), cols)}")
-    codes, names = _codes(units[population].reset_index(drop=True))
+    codes, names = label_codes(units[population].reset_index(drop=True))
     if (codes < 0).any():
         notes.append(f"{int((codes < 0).sum())} units have no population; they are used for training only in the "
                      "transfer view.")
@@ -154,8 +157,6 @@ def _populations(units, population, log, log_codes, notes) -> tuple[np.ndarray, 
 
 def check_units(log, units, unit, where: str = WHERE):
     """The unit spec, after checking the log, the units table and its key columns."""
-    from ..log.eventlog import EventLog
-    from ..units import as_unit
 
     if not isinstance(log, EventLog):
         raise EvaluationError(f"{where}: 'log' must be a rulefeat.EventLog. Got {type(log).__name__}.")
@@ -183,7 +184,7 @@ def prepare(log, units, y, population, unit, task) -> Inputs:
     log_codes = log.student_codes(student_labels, missing="error", where=WHERE)
     notes = _positive_note(task, positive)
     codes, names, column = _populations(X, population, log, log_codes, notes)
-    students, _ = _codes(student_labels)
+    students, _ = label_codes(student_labels)
     return Inputs(X, y_coded, task, students, student_labels.to_numpy(), codes, names, column, notes)
 
 
@@ -205,8 +206,8 @@ def prepare_precomputed(n_units: int, y, students, population, task) -> Inputs:
         pops = pd.Series(np.asarray(population)).reset_index(drop=True)
         if len(pops) != n_units:
             raise EvaluationError(f"{WHERE}: 'population' has {len(pops)} values; expected {n_units}.")
-        codes, names = _codes(pops)
-    students_codes, _ = _codes(labels)
+        codes, names = label_codes(pops)
+    students_codes, _ = label_codes(labels)
     return Inputs(None, y_coded, task, students_codes, labels.to_numpy(), codes, names, None, notes)
 
 

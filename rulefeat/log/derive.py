@@ -204,7 +204,7 @@ def group_ids(fields: dict, scope: str) -> np.ndarray:
                              f"{scope}. Map a column to {scope!r} when building the log.")
     codes = fields[scope].astype(np.int64)
     key = student * (int(codes.max(initial=-1)) + 2) + codes + 1
-    ids, _ = pd.factorize(key, sort=False)
+    ids, _ = _frame.factorize_values(key, sort=False)
     ids = ids.astype(np.int64)
     ids[codes < 0] = -1
     return ids

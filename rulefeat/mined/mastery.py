@@ -386,6 +386,7 @@ class BKT(BaseEstimator):
 
     def __init__(
         self,
+        *,
         n_restarts: int = 3,
         max_iter: int = 200,
         tol: float = 1e-6,

@@ -114,7 +114,7 @@ class LogFeatures(UnitTransformer):
     [[3.0, 0.6666666666666666], [2.0, 0.0]]
     """
 
-    def __init__(self, log, unit="window", families=None, prune=True, max_features=None,
+    def __init__(self, log=None, *, unit="window", families=None, prune=True, max_features=None,
                  mastery_threshold=0.95, pause_quantiles=(0.9, 0.99), min_norm_events=5,
                  hint_level_field="hint_level", hint_total_field="hint_levels_total", bkt_options=None,
                  bkt_max_attempts=1_000_000, missing_students="error", random_state=None):

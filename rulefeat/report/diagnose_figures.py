@@ -7,9 +7,10 @@ import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from ..evaluate.diagnose.attribution import plot_dependence
+from .. import _frame
+from ..evaluate.diagnose.attribution import dependence_data
 
-__all__ = ["plot_shap_share", "plot_shap_per_rule", "plot_dependence_of"]
+__all__ = ["plot_shap_share", "plot_shap_per_rule", "plot_dependence", "plot_dependence_of"]
 
 _RULES, _MINED = "#dd8452", "#4c72b0"  # the rule and mined colours of the evaluation's figures
 
@@ -55,4 +56,34 @@ def plot_dependence_of(values: pd.DataFrame, features: pd.DataFrame, column: str
     """SHAP value of a rule's unit value against the value itself."""
     fig = plot_dependence(values, features, column)
     fig.axes[0].set_title(f"{rule}: SHAP of {column} by its value")
+    return fig
+
+
+def plot_dependence(values: pd.DataFrame, X: pd.DataFrame, feature: str, *, jitter: float = 0.25,
+                    random_state: int | None = 0) -> Figure:
+    """Scatter of a feature's SHAP value against its value (categories on a jittered axis).
+
+    Returns a :class:`matplotlib.figure.Figure` on an Agg canvas (no pyplot, no window).  Categorical,
+    boolean and text features are placed at one position per category, spread by a seeded horizontal
+    ``jitter`` so overlapping points stay visible; missing values are left out and counted in the title.
+    """
+    data = dependence_data(values, X, feature)
+    fig = Figure(figsize=(5.5, 3.8), layout="constrained")
+    FigureCanvasAgg(fig)
+    ax = fig.subplots()
+    known = data["value"].notna().to_numpy()
+    shown = data[known]
+    numeric = _frame.is_number_dtype(shown["value"].dtype) and not _frame.is_bool_dtype(shown["value"].dtype)
+    if numeric:
+        ax.scatter(shown["value"].astype(float), shown["shap"], s=10, alpha=0.6, color="#4c72b0")
+    else:
+        codes, labels = _frame.factorize_values(shown["value"], sort=True)
+        spread = np.random.default_rng(random_state).uniform(-jitter, jitter, len(codes))
+        ax.scatter(codes + spread, shown["shap"], s=10, alpha=0.6, color="#4c72b0")
+        ax.set_xticks(range(len(labels)), [str(v) for v in labels])
+    ax.axhline(0.0, color="grey", linewidth=0.8)
+    ax.set_xlabel(str(feature))
+    ax.set_ylabel("SHAP value")
+    note = f" ({int((~known).sum())} missing not shown)" if (~known).any() else ""
+    ax.set_title(f"Dependence of the model on {feature}{note}")
     return fig

@@ -1,6 +1,6 @@
 """Figures of an incremental-value evaluation, drawn on plain tables.
 
-Each ``plot_*`` function takes the plain data an :class:`~rulefeat.evaluate.value.report.IncrementalValueReport`
+Each ``plot_*`` function takes the plain data an :class:`~rulefeat.report.value.IncrementalValueReport`
 computes (a DataFrame or a dict of curves) and returns a :class:`matplotlib.figure.Figure` attached to an
 Agg canvas.  Nothing here goes through :mod:`matplotlib.pyplot`, so drawing a report never opens a window,
 never changes pyplot's list of open figures and works on machines without a display.

@@ -27,7 +27,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import EvaluationError
-from .markdown import CAUTIONS, LOWER_IS_BETTER, METRIC_LABELS, NA, count, interval, number, signed
+from .tables import CAUTIONS, NA, count, interval, metric_label, number, tables
 
 __all__ = ["save_html", "html_view", "render_html", "format_value", "p_value_text"]
 
@@ -83,102 +83,12 @@ def format_value(value, p: bool = False) -> str:
     return str(value)
 
 
-def _label(metric: str) -> str:
-    return METRIC_LABELS.get(metric, metric)
-
-
-# -- tables: a dict of header, column kinds and rows of strings --------------------------------
+# -- tables: a dict of header, column kinds and rows of strings (the report's own come from tables.py) --------
 def _table(columns: Sequence[str], rows: Sequence[Sequence[str]], kinds: Sequence[str]) -> dict:
     """``kinds`` per column: ``"text"``, ``"key"`` (text on one line), ``"num"`` (right-aligned), ``"code"`` or
     ``"name"`` (code on one line)."""
     return {"columns": [str(c) for c in columns], "kinds": list(kinds),
             "rows": [[str(cell) for cell in row] for row in rows]}
-
-
-def _ci_cells(frame: pd.DataFrame, low: str, high: str) -> list[str]:
-    return [interval(a, b) for a, b in zip(frame[low], frame[high], strict=True)]
-
-
-def _mean_sd(frame: pd.DataFrame, m: str) -> list[str]:
-    return [f"{number(a)} ± {number(b)}" for a, b in zip(frame[m], frame[f"{m}_sd"], strict=True)]
-
-
-def _primary_table(summary: pd.DataFrame, m: str) -> dict:
-    label = _label(m) + (" (lower is better)" if m in LOWER_IS_BETTER else "")
-    columns = {"variant": summary["variant"].tolist(),
-               f"{label}, folds mean ± sd": _mean_sd(summary, m),
-               f"{label}, pooled": summary[f"{m}_pooled"].map(number).tolist(),
-               "Δ vs mined": summary[f"{m}_delta"].map(signed).tolist(),
-               "95% CI of Δ": _ci_cells(summary, f"{m}_ci_low", f"{m}_ci_high"),
-               "p (corrected t)": summary[f"{m}_p"].map(p_value_text).tolist(),
-               "p (naive t)": summary[f"{m}_p_naive"].map(p_value_text).tolist()}
-    if m == "auc":
-        columns["p (DeLong)"] = summary["auc_delong_p"].map(p_value_text).tolist()
-    return _table(columns, list(zip(*columns.values(), strict=True)), ["key"] + ["num"] * (len(columns) - 1))
-
-
-def _metrics_table(summary: pd.DataFrame, metrics: Sequence[str]) -> dict:
-    columns = {"variant": summary["variant"].tolist()}
-    for m in metrics:
-        columns[_label(m) + (" ↓" if m in LOWER_IS_BETTER else "")] = _mean_sd(summary, m)
-    return _table(columns, list(zip(*columns.values(), strict=True)), ["key"] + ["num"] * len(metrics))
-
-
-def _t_text(t, df) -> str:
-    return NA if _missing(t) else f"{t:.2f} ({count(df)})"
-
-
-def _comparisons_table(comparisons: pd.DataFrame, metrics: Sequence[str]) -> dict:
-    rank = {m: i for i, m in enumerate(metrics)}
-    frame = comparisons.assign(_rank=comparisons["metric"].map(rank)).sort_values(
-        ["_rank", "variant"], kind="mergesort")
-    rows = zip([f"{v} − {b}" for v, b in zip(frame["variant"], frame["baseline"], strict=True)],
-               [_label(m) + (" ↓" if m in LOWER_IS_BETTER else "") for m in frame["metric"]],
-               frame["delta"].map(signed), _ci_cells(frame, "ci_low", "ci_high"),
-               [_t_text(t, df) for t, df in zip(frame["t"], frame["df"], strict=True)],
-               frame["p_value"].map(p_value_text), frame["p_naive"].map(p_value_text), strict=True)
-    return _table(["comparison", "metric", "Δ", "95% CI", "t (df)", "p (corrected t)", "p (naive t)"],
-                  list(rows), ["key", "text", "num", "num", "num", "num", "num"])
-
-
-def _per_rule_table(per_rule: pd.DataFrame, means: Mapping[str, str]) -> dict:
-    rows = zip(per_rule["rule"], per_rule["rule"].map(lambda r: means.get(r) or ""),
-               per_rule["drop_delta"].map(signed), _ci_cells(per_rule, "drop_ci_low", "drop_ci_high"),
-               per_rule["drop_p_holm"].map(p_value_text), per_rule["add_delta"].map(signed),
-               _ci_cells(per_rule, "add_ci_low", "add_ci_high"), per_rule["add_p_holm"].map(p_value_text),
-               strict=True)
-    return _table(["rule", "means", "Δ when dropped", "95% CI", "Holm p", "Δ when added", "95% CI", "Holm p"],
-                  list(rows), ["name", "text"] + ["num"] * 6)
-
-
-def _transfer_table(transfer: pd.DataFrame, metrics: Sequence[str], m: str) -> dict:
-    columns = {"held-out population": transfer["population"].astype(str).tolist(),
-               "variant": transfer["variant"].tolist(), "units": transfer["n_test"].map(count).tolist(),
-               "students": transfer["n_test_students"].map(count).tolist()}
-    for metric in metrics:
-        columns[_label(metric)] = transfer[metric].map(number).tolist()
-    columns[f"Δ {_label(m)} vs mined"] = transfer["delta"].map(signed).tolist()
-    return _table(columns, list(zip(*columns.values(), strict=True)), ["key", "key"] + ["num"] * (len(columns) - 2))
-
-
-def _curve_table(curve: pd.DataFrame, m: str) -> dict:
-    share = curve["fraction"].map(lambda f: NA if _missing(f) else f"{f:.0%}")
-    rows = zip(share, curve["mined"].map(number), curve["combined"].map(number), curve["delta"].map(signed),
-               _ci_cells(curve, "ci_low", "ci_high"), strict=True)
-    return _table(["share of training students", f"mined {_label(m)}", f"combined {_label(m)}", "Δ", "95% CI"],
-                  list(rows), ["num"] * 5)
-
-
-def _rules_table(rules: Sequence[Mapping]) -> dict:
-    rows = [(r.get("name", ""), r.get("means") or "", r.get("why") or "", r.get("when", ""),
-             ", ".join(r.get("report") or [])) for r in rules]
-    return _table(["rule", "means", "why", "when", "reports"], rows, ["name", "text", "text", "code", "text"])
-
-
-def _populations_table(populations: Mapping[str, Mapping]) -> dict:
-    rows = [(name, count(p.get("n_units")), count(p.get("n_students")), number(p.get("positive_rate")))
-            for name, p in sorted(populations.items(), key=lambda item: str(item[0]))]
-    return _table(["population", "units", "students", "positive rate"], rows, ["key", "num", "num", "num"])
 
 
 # -- figures ---------------------------------------------------------------------------------------
@@ -216,7 +126,7 @@ def _facts(pairs: Sequence[tuple[str, str]]) -> list[dict]:
     return [{"term": term, "value": value} for term, value in pairs]
 
 
-def _data_view(results: dict) -> dict:
+def _data_view(results: dict, t: dict) -> dict:
     data, settings, counts = results["data"], results["settings"], results.get("feature_counts") or {}
     log = data.get("log") or {}
     actions = ", ".join(f"{k} {count(v)}" for k, v in sorted((log.get("actions") or {}).items()))
@@ -231,7 +141,7 @@ def _data_view(results: dict) -> dict:
     return {"facts": _facts(facts), "issues": [str(i) for i in log.get("issues") or []],
             "dropped": dropped, "dropped_text": count(dropped),
             "population_column": settings.get("population_column"),
-            "populations": _populations_table(populations) if populations else None}
+            "populations": t["populations"].view() if populations else None}
 
 
 def _settings_facts(settings: dict) -> list[dict]:
@@ -248,7 +158,7 @@ def _headline_sentence(report, results: dict) -> str:
     sided = ("one-sided (the alternative is that the rules improve the detector)"
              if settings.get("alternative") == "greater" else "two-sided")
     return (f"The headline p-value is the corrected resampled t-test (Nadeau & Bengio 2003) on the {n_folds} "
-            f"per-fold differences in {_label(report.primary_metric)} between combined and mined, {sided}; it "
+            f"per-fold differences in {metric_label(report.primary_metric)} between combined and mined, {sided}; it "
             "widens the plain fold t-test's variance because training sets overlap between folds.")
 
 
@@ -259,21 +169,18 @@ def _effect(report) -> str:
         return "The results hold no combined − mined comparison of the primary metric."
 
 
-def _value_view(report, results: dict) -> dict:
-    summary, metrics = report.summary(), report.metrics
+def _value_view(report, results: dict, t: dict) -> dict:
     comp = next((c for c in results["comparisons"] if (c["variant"], c["baseline"], c["metric"])
                  == ("combined", "mined", report.primary_metric)), {})
     return {"headline": _headline_sentence(report, results), "ci_method": comp.get("ci_method") or NA,
-            "primary": _primary_table(summary, report.primary_metric),
-            "metrics": _metrics_table(summary, metrics),
-            "comparisons": _comparisons_table(report.comparisons(), metrics)}
+            "primary": t["primary"].view(), "metrics": t["metrics"].view(),
+            "comparisons": t["comparisons"].view()}
 
 
-def _transfer_view(report, metrics: Sequence[str]) -> dict:
-    transfer = report.transfer()
-    if not len(transfer):
-        return {"table": None, "reason": str(transfer.attrs.get("reason") or "no transfer results.")}
-    return {"table": _transfer_table(transfer, metrics, report.primary_metric), "reason": None}
+def _transfer_view(report, t: dict) -> dict:
+    if not len(t["transfer"]):
+        return {"table": None, "reason": str(report.transfer().attrs.get("reason") or "no transfer results.")}
+    return {"table": t["transfer"].view(), "reason": None}
 
 
 def _cautions() -> list[dict]:
@@ -471,20 +378,18 @@ def html_view(report, diagnostics=None) -> dict:
         ``guards``, ``notes``, ``reproducibility``, ``cautions``.
     """
     _check_report(report)
-    results, metrics = report.to_dict(), report.metrics
-    means = {r.get("name"): r.get("means") for r in results["rules"]}
-    per_rule, curve = report.per_rule(), report.learning_curve()
+    results, t = report.to_dict(), tables(report)
     diagnostics_view = _diagnostics_view(diagnostics)
     repro = sorted((results.get("reproducibility") or {}).items())
     return {
         "title": "Incremental value of the expert rules", "effect": _effect(report),
-        "contents": _contents(diagnostics_view), "data": _data_view(results),
+        "contents": _contents(diagnostics_view), "data": _data_view(results, t),
         "settings": _settings_facts(results["settings"]),
-        "model": " ".join(str(results["settings"].get("model")).split()), "rules": _rules_table(results["rules"]),
-        "rules_hash": str(results.get("rules_hash") or NA), "value": _value_view(report, results),
-        "per_rule": _per_rule_table(per_rule, means) if len(per_rule) else None,
-        "diagnostics": diagnostics_view, "transfer": _transfer_view(report, metrics),
-        "learning_curve": _curve_table(curve, report.primary_metric) if len(curve) else None,
+        "model": " ".join(str(results["settings"].get("model")).split()), "rules": t["rules"].view(),
+        "rules_hash": str(results.get("rules_hash") or NA), "value": _value_view(report, results, t),
+        "per_rule": t["per_rule"].view() if len(t["per_rule"]) else None,
+        "diagnostics": diagnostics_view, "transfer": _transfer_view(report, t),
+        "learning_curve": t["learning_curve"].view() if len(t["learning_curve"]) else None,
         "figures": _report_figures(report),
         "guards": [{"kind": str(g.get("kind")), "message": str(g.get("message"))} for g in results["guards"]],
         "notes": [str(n) for n in results["notes"]],

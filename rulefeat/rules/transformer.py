@@ -54,22 +54,22 @@ class RuleFeatures(UnitTransformer):
 
     Parameters
     ----------
-    rules : RuleSet, list of Rule, str or path
-        The rules, or TOML text / a ``.toml`` file defining them.
     log : EventLog
         The events; shared, never copied (``clone`` keeps the same log).
+    rules : RuleSet, list of Rule, str or path
+        The rules, or TOML text / a ``.toml`` file defining them.
     unit : str or Unit, default "window"
         What a row of ``X`` is (``"window"``, ``"last"``, ``"step"``, ``"problem"``,
         ``"session"``, ``"student"``, or a :class:`~rulefeat.units.Unit`).
     select : list of str, optional
         Output only these rules' features (the others are still computed when
         a selected rule refers to them). Default: every rule.
-    missing_students : {"error", "empty"}, default "error"
-        Rows of ``X`` naming students absent from the log raise, or give empty
-        units (counts 0, other summaries NaN).
     min_count : int, default 5
         Training values a key needs before its own norm is used instead of the
         overall one.
+    missing_students : {"error", "empty"}, default "error"
+        Rows of ``X`` naming students absent from the log raise, or give empty
+        units (counts 0, other summaries NaN).
 
     Examples
     --------
@@ -85,8 +85,8 @@ class RuleFeatures(UnitTransformer):
     1                0.0              0.0
     """
 
-    def __init__(self, rules=None, log=None, unit="window", select=None, missing_students="error",
-                 min_count=5):
+    def __init__(self, log=None, rules=None, *, unit="window", select=None, min_count=5,
+                 missing_students="error"):
         self.rules = rules
         self.log = log
         self.unit = unit

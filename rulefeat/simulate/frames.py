@@ -72,7 +72,7 @@ def windows_frames(rng, first, actions, time, dur, plan, people, names, knobs, l
     eta = episodes @ np.array([links[b] for b in BEHAVIOURS])
     n_schools = len(people.school_names)
     intercept = _sim_labels.school_intercepts(eta, school, n_schools, knobs["label_rate"])
-    p_true = _sim_labels._expit(intercept[school] + eta)
+    p_true = _sim_labels.expit(intercept[school] + eta)
     true, coded = _sim_labels.code_labels(rng, p_true, knobs["coder_error"])
     window_id = np.arange(first.size)
     windows = pd.DataFrame({

@@ -326,8 +326,8 @@ def _rates(scale: dict[str, float], school_spread: float) -> np.ndarray:
 
 def tutor_logs(
     n_students: int = 200,
-    seed: int | None = 0,
     *,
+    seed: int | None = 0,
     n_skills: int = 8,
     problems_per_skill: int = 16,
     steps_per_problem: tuple[int, int] = (1, 4),

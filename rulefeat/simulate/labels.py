@@ -12,7 +12,7 @@ from .plan import (
     Plan,
     Platform,
     Population,
-    _rank_within,
+    rank_within,
 )
 from .steps import Actions
 
@@ -33,13 +33,13 @@ def pick_windows(
     gets up to ``windows_per_student`` of their blocks, drawn without replacement, so
     windows never overlap.  The choice ignores what happened in the blocks.
     """
-    rank = _rank_within(plan.session)
+    rank = rank_within(plan.session)
     size = np.bincount(plan.session)[plan.session]
     is_first = (rank % window_steps == 0) & (rank // window_steps < size // window_steps)
     first = np.flatnonzero(is_first)
     student = plan.student[first]
     order = np.lexsort((rng.random(first.size), student))
-    chosen = order[_rank_within(student[order]) < windows_per_student]
+    chosen = order[rank_within(student[order]) < windows_per_student]
     return first[np.sort(chosen)]
 
 
@@ -64,7 +64,7 @@ def window_contents(
     return c_events[last] - c_events[first], c_episodes[last] - c_episodes[first]
 
 
-def _expit(x: np.ndarray) -> np.ndarray:
+def expit(x: np.ndarray) -> np.ndarray:
     return 0.5 * (1.0 + np.tanh(0.5 * x))
 
 
@@ -78,7 +78,7 @@ def school_intercepts(eta: np.ndarray, school: np.ndarray, n_schools: int, rate:
     n = np.bincount(school, minlength=n_schools)
     for _ in range(80):
         mid = 0.5 * (low + high)
-        mean = np.bincount(school, weights=_expit(mid[school] + eta), minlength=n_schools)
+        mean = np.bincount(school, weights=expit(mid[school] + eta), minlength=n_schools)
         too_high = mean > rate * n
         high = np.where(too_high, mid, high)
         low = np.where(too_high, low, mid)

@@ -192,7 +192,7 @@ def _visits(rng: np.random.Generator, platform: Platform, n_students: int, cover
     return student, step
 
 
-def _rank_within(keys: np.ndarray) -> np.ndarray:
+def rank_within(keys: np.ndarray) -> np.ndarray:
     """Position of each row within its run of equal consecutive keys."""
     new = np.ones(keys.size, dtype=bool)
     new[1:] = keys[1:] != keys[:-1]
@@ -212,7 +212,7 @@ def _sessions(rng: np.random.Generator, student: np.ndarray, n_students: int, se
     spare = (per_student - n_sess)[:, None]
     bounds = np.arange(1, width + 1) + np.rint(cum * spare).astype(np.int64)
     bounds = np.where(np.arange(width) < n_sess[:, None], bounds, np.iinfo(np.int64).max)
-    rank = _rank_within(student)
+    rank = rank_within(student)
     local = (rank[:, None] >= bounds[student]).sum(axis=1)
     session_offset = np.concatenate([[0], np.cumsum(n_sess)[:-1]])
     session = session_offset[student] + local
@@ -232,7 +232,7 @@ def draw_plan(
     n_students = population.student_school.size
     student, step = _visits(rng, platform, n_students, coverage)
     skill = platform.step_skill[step]
-    seq_pos = _rank_within(student * len(platform.skill_names) + skill)
+    seq_pos = rank_within(student * len(platform.skill_names) + skill)
     session, session_student, session_rank = _sessions(rng, student, n_students, sessions)
     session_first = np.ones(student.size, dtype=bool)
     session_first[1:] = session[1:] != session[:-1]

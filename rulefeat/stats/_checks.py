@@ -14,7 +14,7 @@ def _is_missing(value) -> bool:
         return True
 
 
-def _vector(values, where: str, name: str) -> np.ndarray:
+def check_vector(values, where: str, name: str) -> np.ndarray:
     arr = np.asarray(values)
     if arr.ndim != 1:
         raise EvaluationError(f"{where}: {name!r} must be one-dimensional; got shape {arr.shape}.")
@@ -30,7 +30,7 @@ def _vector(values, where: str, name: str) -> np.ndarray:
     return arr
 
 
-def _same_length(where: str, **arrays: np.ndarray) -> int:
+def check_same_length(where: str, **arrays: np.ndarray) -> int:
     lengths = {name: len(a) for name, a in arrays.items()}
     if len(set(lengths.values())) != 1:
         raise EvaluationError(f"{where}: inputs must have the same length; got {lengths}.")
@@ -39,7 +39,7 @@ def _same_length(where: str, **arrays: np.ndarray) -> int:
     return next(iter(lengths.values()))
 
 
-def _codes(values: np.ndarray, where: str, name: str) -> tuple[np.ndarray, np.ndarray]:
+def check_codes(values: np.ndarray, where: str, name: str) -> tuple[np.ndarray, np.ndarray]:
     """Distinct sorted values and each row's index into them."""
     try:
         distinct, codes = np.unique(values, return_inverse=True)
@@ -48,9 +48,9 @@ def _codes(values: np.ndarray, where: str, name: str) -> tuple[np.ndarray, np.nd
     return distinct, codes.ravel()
 
 
-def _binary(y_true, where: str) -> np.ndarray:
+def check_binary(y_true, where: str) -> np.ndarray:
     """Return a bool array, True for the positive (greater) label."""
-    classes, codes = _codes(_vector(y_true, where, "y_true"), where, "y_true")
+    classes, codes = check_codes(check_vector(y_true, where, "y_true"), where, "y_true")
     if len(classes) != 2:
         raise EvaluationError(
             f"{where}: 'y_true' must hold exactly two classes; found {len(classes)} "
@@ -59,8 +59,8 @@ def _binary(y_true, where: str) -> np.ndarray:
     return codes == 1
 
 
-def _scores(score, where: str, name: str) -> np.ndarray:
-    s = _vector(score, where, name)
+def check_scores(score, where: str, name: str) -> np.ndarray:
+    s = check_vector(score, where, name)
     try:
         s = s.astype(float)
     except (TypeError, ValueError) as exc:
@@ -70,10 +70,10 @@ def _scores(score, where: str, name: str) -> np.ndarray:
     return s
 
 
-def _weights(sample_weight, n: int, where: str) -> np.ndarray:
+def check_weights(sample_weight, n: int, where: str) -> np.ndarray:
     if sample_weight is None:
         return np.ones(n)
-    w = _scores(sample_weight, where, "sample_weight")
+    w = check_scores(sample_weight, where, "sample_weight")
     if len(w) != n:
         raise EvaluationError(f"{where}: 'sample_weight' has length {len(w)}; expected {n}.")
     if (w < 0).any():
@@ -81,13 +81,13 @@ def _weights(sample_weight, n: int, where: str) -> np.ndarray:
     return w
 
 
-def _alpha(alpha: float, where: str) -> float:
+def check_alpha(alpha: float, where: str) -> float:
     if not (isinstance(alpha, (int, float, np.floating)) and 0 < alpha < 1):
         raise EvaluationError(f"{where}: 'alpha' must be a number in (0, 1); got {alpha!r}.")
     return float(alpha)
 
 
-def _positive_number(value, where: str, name: str, integer: bool = False) -> None:
+def check_positive_number(value, where: str, name: str, integer: bool = False) -> None:
     kinds = (int, np.integer) if integer else (int, float, np.integer, np.floating)
     if isinstance(value, bool) or not isinstance(value, kinds) or not np.isfinite(value) or value <= 0:
         kind = "integer" if integer else "number"

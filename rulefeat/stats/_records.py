@@ -14,7 +14,7 @@ from ..errors import EvaluationError
 _MISSING = ("raise", "drop")
 
 
-class _Fields:
+class Fields:
     """Read a result dataclass like a mapping; ``to_dict`` gives plain Python values for JSON."""
 
     def keys(self) -> list[str]:
@@ -30,7 +30,7 @@ class _Fields:
 
 
 def _plain(value):
-    if isinstance(value, _Fields):
+    if isinstance(value, Fields):
         return value.to_dict()
     if isinstance(value, (np.ndarray, np.generic)):
         return value.tolist()
@@ -38,7 +38,7 @@ def _plain(value):
 
 
 # -- input handling ------------------------------------------------------------------------------
-def _matrix(X, where: str, name: str) -> tuple[np.ndarray, tuple[str, ...]]:
+def as_matrix(X, where: str, name: str) -> tuple[np.ndarray, tuple[str, ...]]:
     """A float (n, k) matrix and its column names; 1-D input is one column."""
     if isinstance(X, pd.Series):
         X = X.to_frame(name=name if X.name is None else X.name)
@@ -61,7 +61,7 @@ def _matrix(X, where: str, name: str) -> tuple[np.ndarray, tuple[str, ...]]:
     return arr, (name,) if arr.shape[1] == 1 else tuple(f"{name}{j}" for j in range(arr.shape[1]))
 
 
-def _complete(where: str, missing: str, arrays: dict[str, np.ndarray]) -> tuple[dict[str, np.ndarray], int]:
+def complete_cases(where: str, missing: str, arrays: dict[str, np.ndarray]) -> tuple[dict[str, np.ndarray], int]:
     """Check lengths and finiteness; drop incomplete rows when ``missing='drop'``, else refuse them."""
     if missing not in _MISSING:
         raise EvaluationError(f"{where}: 'missing' must be one of {_MISSING}; got {missing!r}.")
@@ -83,7 +83,7 @@ def _complete(where: str, missing: str, arrays: dict[str, np.ndarray]) -> tuple[
     return {name: a[~bad] for name, a in arrays.items()}, int(bad.sum())
 
 
-def _outcome(y, where: str, name: str = "y") -> np.ndarray:
+def as_outcome(y, where: str, name: str = "y") -> np.ndarray:
     """A 1-D float array (None and pandas NA become NaN)."""
     try:
         values = y.to_numpy(dtype=float, na_value=np.nan) if isinstance(y, pd.Series) else np.asarray(y, dtype=float)
@@ -95,7 +95,7 @@ def _outcome(y, where: str, name: str = "y") -> np.ndarray:
     return values
 
 
-def _zero_one(y: np.ndarray, where: str) -> np.ndarray:
+def as_zero_one(y: np.ndarray, where: str) -> np.ndarray:
     """0/1 floats for a two-valued outcome (the greater value is 1)."""
     distinct = np.unique(y)
     if len(distinct) != 2:

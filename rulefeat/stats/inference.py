@@ -15,7 +15,16 @@ import numpy as np
 from scipy import stats as sps
 
 from ..errors import EvaluationError, RulefeatWarning
-from ._checks import _alpha, _binary, _codes, _positive_number, _same_length, _scores, _vector, _weights
+from ._checks import (
+    check_alpha,
+    check_binary,
+    check_codes,
+    check_positive_number,
+    check_same_length,
+    check_scores,
+    check_vector,
+    check_weights,
+)
 
 __all__ = [
     "auc", "delong_covariance", "delong_test", "DeLongResult", "hanley_mcneil_se",
@@ -46,9 +55,9 @@ def auc(y_true, score, sample_weight=None) -> float:
     0.75
     """
     where = "auc"
-    y, s = _binary(y_true, where), _scores(score, where, "score")
-    w = _weights(sample_weight, _same_length(where, y_true=y, score=s), where)
-    distinct, ties = _codes(s, where, "score")
+    y, s = check_binary(y_true, where), check_scores(score, where, "score")
+    w = check_weights(sample_weight, check_same_length(where, y_true=y, score=s), where)
+    distinct, ties = check_codes(s, where, "score")
     pos = np.bincount(ties, weights=w * y, minlength=len(distinct))
     neg = np.bincount(ties, weights=w * ~y, minlength=len(distinct))
     if pos.sum() <= 0 or neg.sum() <= 0:
@@ -88,11 +97,11 @@ def delong_covariance(y_true, scores) -> tuple[np.ndarray, np.ndarray]:
     0.75
     """
     where = "delong_covariance"
-    y = _binary(y_true, where)
+    y = check_binary(y_true, where)
     s = np.atleast_2d(np.asarray(scores))
     if s.ndim != 2 or s.shape[1] != len(y):
         raise EvaluationError(f"{where}: 'scores' must have shape (k, {len(y)}); got {np.shape(scores)}.")
-    s = np.vstack([_scores(row, where, "scores") for row in s])
+    s = np.vstack([check_scores(row, where, "scores") for row in s])
     m, n = int(y.sum()), int((~y).sum())
     if m < 2 or n < 2:
         raise EvaluationError(f"{where}: needs at least 2 positives and 2 negatives; got {m} and {n}.")
@@ -127,9 +136,9 @@ def delong_test(y_true, score_a, score_b, alpha: float = 0.05) -> DeLongResult:
     0.3333
     """
     where = "delong_test"
-    a, b = _scores(score_a, where, "score_a"), _scores(score_b, where, "score_b")
-    _same_length(where, y_true=np.asarray(y_true), score_a=a, score_b=b)
-    level = _alpha(alpha, where)
+    a, b = check_scores(score_a, where, "score_a"), check_scores(score_b, where, "score_b")
+    check_same_length(where, y_true=np.asarray(y_true), score_a=a, score_b=b)
+    level = check_alpha(alpha, where)
     aucs, cov = delong_covariance(y_true, np.vstack([a, b]))
     diff = float(aucs[0] - aucs[1])
     se = float(np.sqrt(max(cov[0, 0] + cov[1, 1] - 2.0 * cov[0, 1], 0.0)))
@@ -152,8 +161,8 @@ def hanley_mcneil_se(auc: float, n_pos: int, n_neg: int) -> float:
     where = "hanley_mcneil_se"
     if isinstance(auc, bool) or not isinstance(auc, (int, float, np.number)) or not 0.0 <= auc <= 1.0:
         raise EvaluationError(f"{where}: 'auc' must be a number in [0, 1]; got {auc!r}.")
-    _positive_number(n_pos, where, "n_pos", integer=True)
-    _positive_number(n_neg, where, "n_neg", integer=True)
+    check_positive_number(n_pos, where, "n_pos", integer=True)
+    check_positive_number(n_neg, where, "n_neg", integer=True)
     a = float(auc)
     q1, q2 = a / (2.0 - a), 2.0 * a * a / (1.0 + a)
     var = (a * (1 - a) + (n_pos - 1) * (q1 - a * a) + (n_neg - 1) * (q2 - a * a)) / (n_pos * n_neg)
@@ -213,9 +222,9 @@ def cohen_kappa(y_true, y_pred) -> float:
     0.5455
     """
     where = "cohen_kappa"
-    a, b = _vector(y_true, where, "y_true"), _vector(y_pred, where, "y_pred")
-    n = _same_length(where, y_true=a, y_pred=b)
-    labels, codes = _codes(np.concatenate([a, b]), where, "y_true/y_pred")
+    a, b = check_vector(y_true, where, "y_true"), check_vector(y_pred, where, "y_pred")
+    n = check_same_length(where, y_true=a, y_pred=b)
+    labels, codes = check_codes(np.concatenate([a, b]), where, "y_true/y_pred")
     c = len(labels)
     table = np.bincount(codes[:n] * c + codes[n:], minlength=c * c).reshape(c, c)
     return kappa_from_table(table)[0]
@@ -235,9 +244,9 @@ def best_kappa_threshold(y_true, score) -> float:
     0.3
     """
     where = "best_kappa_threshold"
-    y, s = _binary(y_true, where), _scores(score, where, "score")
-    _same_length(where, y_true=y, score=s)
-    distinct, ties = _codes(s, where, "score")
+    y, s = check_binary(y_true, where), check_scores(score, where, "score")
+    check_same_length(where, y_true=y, score=s)
+    distinct, ties = check_codes(s, where, "score")
     # Predicted positive at candidate k = rows with score >= distinct[k]: reverse cumulative counts.
     tp = np.cumsum(np.bincount(ties[y], minlength=len(distinct))[::-1])[::-1]
     fp = np.cumsum(np.bincount(ties[~y], minlength=len(distinct))[::-1])[::-1]
@@ -264,10 +273,10 @@ class TTestResult:
 
 def _t_test(differences, variance_factor: Callable[[int], float], alpha: float, where: str) -> TTestResult:
     """t-test with ``se = sqrt(factor(J) * var(d, ddof=1))``; equal differences give se = 0."""
-    d = _scores(differences, where, "differences")
+    d = check_scores(differences, where, "differences")
     if len(d) < 2:
         raise EvaluationError(f"{where}: needs at least 2 fold differences to estimate a variance; got {len(d)}.")
-    alpha = _alpha(alpha, where)
+    alpha = check_alpha(alpha, where)
     mean, df = float(d.mean()), len(d) - 1
     se = 0.0 if np.ptp(d) == 0 else float(np.sqrt(variance_factor(len(d)) * d.var(ddof=1)))
     t, p = (mean / se, float(2.0 * sps.t.sf(abs(mean / se), df))) if se > 0 else _degenerate(mean)
@@ -293,8 +302,8 @@ def corrected_resampled_ttest(differences, n_train: float, n_test: float, alpha:
     2.9277
     """
     where = "corrected_resampled_ttest"
-    _positive_number(n_train, where, "n_train")
-    _positive_number(n_test, where, "n_test")
+    check_positive_number(n_train, where, "n_train")
+    check_positive_number(n_test, where, "n_test")
     return _t_test(differences, lambda j: 1.0 / j + float(n_test) / float(n_train), alpha, where)
 
 
@@ -322,24 +331,24 @@ class BootstrapResult:
     replicates: np.ndarray
 
 
-def _bootstrap_setup(groups, n: int, n_boot: int, alpha: float, random_state, where: str):
+def bootstrap_setup(groups, n: int, n_boot: int, alpha: float, random_state, where: str):
     """Validate the bootstrap arguments; return group codes, group count, n_boot, alpha, rng."""
-    g = _vector(groups, where, "groups")
+    g = check_vector(groups, where, "groups")
     if len(g) != n:
         raise EvaluationError(f"{where}: 'groups' has length {len(g)}; expected {n}.")
-    labels, codes = _codes(g, where, "groups")
+    labels, codes = check_codes(g, where, "groups")
     if len(labels) < 2:
         raise EvaluationError(f"{where}: needs at least 2 groups (students) to resample; got {len(labels)}.")
-    _positive_number(n_boot, where, "n_boot", integer=True)
+    check_positive_number(n_boot, where, "n_boot", integer=True)
     try:
         rng = np.random.default_rng(random_state)
     except (TypeError, ValueError) as exc:
         raise EvaluationError(f"{where}: 'random_state' must be None, an int or a numpy Generator; "
                               f"got {random_state!r}.") from exc
-    return codes, len(labels), int(n_boot), _alpha(alpha, where), rng
+    return codes, len(labels), int(n_boot), check_alpha(alpha, where), rng
 
 
-def _bootstrap_counts(n_groups: int, n_boot: int, rng: np.random.Generator, n_rows: int):
+def bootstrap_counts(n_groups: int, n_boot: int, rng: np.random.Generator, n_rows: int):
     """Yield blocks of (replicates, n_groups) multiplicities; each replicate draws n_groups groups.
 
     The block size depends only on the data's shape, so a seed always gives the same replicates.
@@ -359,8 +368,8 @@ def _cell_plan(score: np.ndarray, y: np.ndarray, codes: np.ndarray, n_groups: in
     positives, plus, for each positive cell, how many negative cells lie strictly below its
     score (``lo``) and at or below it (``hi``).
     """
-    ties = _codes(score, "grouped_bootstrap_auc_difference", "score")[1]
-    cells, cell_of_row = _codes(ties.astype(np.int64) * n_groups + codes, "bootstrap", "cells")
+    ties = check_codes(score, "grouped_bootstrap_auc_difference", "score")[1]
+    cells, cell_of_row = check_codes(ties.astype(np.int64) * n_groups + codes, "bootstrap", "cells")
     plan = []
     for rows in (~y, y):
         count = np.bincount(cell_of_row[rows], minlength=len(cells))
@@ -416,13 +425,13 @@ def grouped_bootstrap_auc_difference(y_true, score_a, score_b, groups, n_boot: i
     (200, 0.4444)
     """
     where = "grouped_bootstrap_auc_difference"
-    a, b = _scores(score_a, where, "score_a"), _scores(score_b, where, "score_b")
-    y = _binary(y_true, where)
-    n = _same_length(where, y_true=y, score_a=a, score_b=b)
-    codes, n_groups, n_boot, alpha, rng = _bootstrap_setup(groups, n, n_boot, alpha, random_state, where)
+    a, b = check_scores(score_a, where, "score_a"), check_scores(score_b, where, "score_b")
+    y = check_binary(y_true, where)
+    n = check_same_length(where, y_true=y, score_a=a, score_b=b)
+    codes, n_groups, n_boot, alpha, rng = bootstrap_setup(groups, n, n_boot, alpha, random_state, where)
     plans = [_cell_plan(s, y, codes, n_groups) for s in (a, b)]
     blocks = [_block_auc(counts, plans[0]) - _block_auc(counts, plans[1])
-              for counts in _bootstrap_counts(n_groups, n_boot, rng, n)]
+              for counts in bootstrap_counts(n_groups, n_boot, rng, n)]
     return _percentile_result(auc(y, a) - auc(y, b), np.concatenate(blocks), n_boot, alpha, where)
 
 
@@ -450,11 +459,11 @@ def grouped_bootstrap_metric_difference(y_true, pred_a, pred_b, groups, metric: 
     where = "grouped_bootstrap_metric_difference"
     if not callable(metric):
         raise EvaluationError(f"{where}: 'metric' must be callable as metric(y, pred, sample_weight=w); got {metric!r}.")
-    y = _vector(y_true, where, "y_true")
+    y = check_vector(y_true, where, "y_true")
     a, b = np.asarray(pred_a), np.asarray(pred_b)
-    n = _same_length(where, y_true=y, pred_a=a, pred_b=b)
-    codes, n_groups, n_boot, alpha, rng = _bootstrap_setup(groups, n, n_boot, alpha, random_state, where)
-    labels, label_codes = _codes(y, where, "y_true")
+    n = check_same_length(where, y_true=y, pred_a=a, pred_b=b)
+    codes, n_groups, n_boot, alpha, rng = bootstrap_setup(groups, n, n_boot, alpha, random_state, where)
+    labels, label_codes = check_codes(y, where, "y_true")
 
     def difference(w: np.ndarray) -> float:
         keep = w > 0
@@ -467,7 +476,7 @@ def grouped_bootstrap_metric_difference(y_true, pred_a, pred_b, groups, metric: 
         return values[0] - values[1]
 
     reps = [difference(row[codes].astype(float))
-            for counts in _bootstrap_counts(n_groups, n_boot, rng, n) for row in counts]
+            for counts in bootstrap_counts(n_groups, n_boot, rng, n) for row in counts]
     return _percentile_result(difference(np.ones(n)), np.asarray(reps, dtype=float), n_boot, alpha, where)
 
 

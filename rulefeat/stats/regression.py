@@ -11,12 +11,12 @@ from scipy import special as ssp
 from scipy import stats as sps
 
 from ..errors import EvaluationError, RulefeatWarning
-from ._records import _complete, _Fields, _matrix, _outcome, _zero_one
+from ._records import Fields, as_matrix, as_outcome, as_zero_one, complete_cases
 
 __all__ = ["fit_logit", "LogitFit", "fit_ols", "OLSFit", "hierarchical_regression", "NestedComparison"]
 
 
-def _design(X: np.ndarray, names: tuple[str, ...], add_constant: bool, where: str):
+def design_matrix(X: np.ndarray, names: tuple[str, ...], add_constant: bool, where: str):
     if add_constant:
         X, names = np.column_stack([np.ones(len(X)), X]), ("const", *names)
     if X.shape[1] == 0:
@@ -46,7 +46,7 @@ def _check_rank(X: np.ndarray, names: tuple[str, ...], where: str) -> None:
 
 # -- fits ------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
-class LogitFit(_Fields):
+class LogitFit(Fields):
     """Maximum-likelihood logistic regression; ``ll_null`` is the intercept-only model's log-likelihood."""
 
     params: np.ndarray
@@ -62,7 +62,7 @@ class LogitFit(_Fields):
 
 
 @dataclass(frozen=True)
-class OLSFit(_Fields):
+class OLSFit(Fields):
     """Ordinary least squares; R² is centred with a constant and uncentred without one (as is usual)."""
 
     params: np.ndarray
@@ -146,15 +146,15 @@ def fit_logit(X, y, *, add_constant: bool = True, max_iter: int = 100, tol: floa
     (('const', 'x'), 2.428, True)
     """
     where = "fit_logit"
-    A, names = _matrix(X, where, "x")
-    data, _ = _complete(where, "raise", {"X": A, "y": _outcome(y, where)})
-    design, names = _design(data["X"], names, add_constant, where)
+    A, names = as_matrix(X, where, "x")
+    data, _ = complete_cases(where, "raise", {"X": A, "y": as_outcome(y, where)})
+    design, names = design_matrix(data["X"], names, add_constant, where)
     return _logit(design, data["y"], names, where, max_iter, tol)
 
 
 def _logit(design: np.ndarray, y: np.ndarray, names: tuple[str, ...], where: str, max_iter: int = 100,
            tol: float = 1e-10) -> LogitFit:
-    target = _zero_one(y, where)
+    target = as_zero_one(y, where)
     beta, llf, converged, n_iter = _newton(design, target, max_iter, tol)
     if not converged or np.max(np.abs(design @ beta)) > 30.0:  # |eta| > 30: probabilities saturate
         _separation(design, target, names, where)
@@ -189,9 +189,9 @@ def fit_ols(X, y, *, add_constant: bool = True) -> OLSFit:
     (1.98, 0.9991)
     """
     where = "fit_ols"
-    A, names = _matrix(X, where, "x")
-    data, _ = _complete(where, "raise", {"X": A, "y": _outcome(y, where)})
-    design, names = _design(data["X"], names, add_constant, where)
+    A, names = as_matrix(X, where, "x")
+    data, _ = complete_cases(where, "raise", {"X": A, "y": as_outcome(y, where)})
+    design, names = design_matrix(data["X"], names, add_constant, where)
     return _ols(design, data["y"], names, where, add_constant)
 
 
@@ -211,7 +211,7 @@ def _ols(design: np.ndarray, y: np.ndarray, names: tuple[str, ...], where: str, 
 
 # -- nested models ------------------------------------------------------------------------------------
 @dataclass(frozen=True)
-class NestedComparison(_Fields):
+class NestedComparison(Fields):
     """Base model against base + extra on the same rows.
 
     ``statistic`` is the partial F (continuous) or likelihood-ratio statistic (binary) with ``df1``
@@ -257,12 +257,12 @@ def hierarchical_regression(base, extra, y, kind: str = "auto", *, add_constant:
     ('continuous', 1, 3)
     """
     where = "hierarchical_regression"
-    target = _outcome(y, where)
-    B, base_names = _matrix(np.empty((len(target), 0)) if base is None else base, where, "base")
-    E, extra_names = _matrix(extra, where, "extra")
+    target = as_outcome(y, where)
+    B, base_names = as_matrix(np.empty((len(target), 0)) if base is None else base, where, "base")
+    E, extra_names = as_matrix(extra, where, "extra")
     if E.shape[1] == 0:
         raise EvaluationError(f"{where}: 'extra' has no columns; pass at least one predictor to test.")
-    data, dropped = _complete(where, missing, {"base": B, "extra": E, "y": target})
+    data, dropped = complete_cases(where, missing, {"base": B, "extra": E, "y": target})
     kinds = ("auto", "continuous", "binary")
     if kind not in kinds:
         raise EvaluationError(f"{where}: 'kind' must be one of {kinds}; got {kind!r}.")
@@ -271,7 +271,7 @@ def hierarchical_regression(base, extra, y, kind: str = "auto", *, add_constant:
     fits = []
     for label, X, names in [("base", data["base"], base_names),
                             ("full", np.column_stack([data["base"], data["extra"]]), (*base_names, *extra_names))]:
-        design, names = _design(X, names, add_constant, f"{where} ({label} model)")
+        design, names = design_matrix(X, names, add_constant, f"{where} ({label} model)")
         fits.append(_logit(design, data["y"], names, f"{where} ({label} model)") if kind == "binary"
                     else _ols(design, data["y"], names, f"{where} ({label} model)", add_constant))
     small, large = fits

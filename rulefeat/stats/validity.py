@@ -16,21 +16,21 @@ import numpy as np
 from scipy import stats as sps
 
 from ..errors import EvaluationError
-from ._records import _complete, _Fields, _matrix, _outcome
+from ._records import Fields, as_matrix, as_outcome, complete_cases
 from .inference import (
-    _alpha,
-    _binary,
-    _bootstrap_counts,
-    _bootstrap_setup,
-    _vector,
     auc,
+    bootstrap_counts,
+    bootstrap_setup,
+    check_alpha,
+    check_binary,
+    check_vector,
     cohen_kappa,
 )
 from .regression import (
     LogitFit,
     NestedComparison,
     OLSFit,
-    _design,
+    design_matrix,
     fit_logit,
     fit_ols,
     hierarchical_regression,
@@ -43,7 +43,7 @@ __all__ = [
 ]
 
 @dataclass(frozen=True)
-class PartialCorrelation(_Fields):
+class PartialCorrelation(Fields):
     """Correlation of x and y after removing linear effects of ``n_controls`` controls (+ constant)."""
 
     r: float
@@ -95,19 +95,19 @@ def partial_correlation(x, y, control, *, alpha: float = 0.05, missing: str = "r
     (-0.291, 5)
     """
     where = "partial_correlation"
-    level = _alpha(alpha, where)
-    X, _ = _matrix(x, where, "x")
-    Y, _ = _matrix(y, where, "y")
-    C, _ = _matrix(control, where, "control")
+    level = check_alpha(alpha, where)
+    X, _ = as_matrix(x, where, "x")
+    Y, _ = as_matrix(y, where, "y")
+    C, _ = as_matrix(control, where, "control")
     if X.shape[1] != 1 or Y.shape[1] != 1 or C.shape[1] == 0:
         raise EvaluationError(f"{where}: 'x' and 'y' must be single columns and 'control' at least one column; "
                               f"got {X.shape[1]}, {Y.shape[1]} and {C.shape[1]}.")
-    data, dropped = _complete(where, missing, {"x": X, "y": Y, "control": C})
+    data, dropped = complete_cases(where, missing, {"x": X, "y": Y, "control": C})
     n, k = len(data["x"]), C.shape[1]
     if n - 3 - k < 1:
         raise EvaluationError(f"{where}: {n} rows with {k} controls leave n - 3 - k = {n - 3 - k} degrees for "
                               "the Fisher-z interval; need at least 1.")
-    design, _ = _design(data["control"], tuple(f"control{j}" for j in range(k)), True, where)
+    design, _ = design_matrix(data["control"], tuple(f"control{j}" for j in range(k)), True, where)
     resid = np.column_stack([data["x"], data["y"]])
     resid = resid - design @ np.linalg.lstsq(design, resid, rcond=None)[0]
     r = _pearson(resid[:, 0], resid[:, 1], where, "'x' or 'y' after removing the controls")
@@ -116,7 +116,7 @@ def partial_correlation(x, y, control, *, alpha: float = 0.05, missing: str = "r
 
 
 @dataclass(frozen=True)
-class Correlation(_Fields):
+class Correlation(Fields):
     """A correlation with its CI; ``ci_method`` is ``"fisher_z"`` or ``"student_bootstrap"``."""
 
     r: float
@@ -153,10 +153,10 @@ def _weighted_r(w: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 
 
 def _boot_correlations(x, y, method, groups, n_boot, alpha, random_state, where):
-    codes, n_groups, n_boot, alpha, rng = _bootstrap_setup(groups, len(x), n_boot, alpha, random_state, where)
+    codes, n_groups, n_boot, alpha, rng = bootstrap_setup(groups, len(x), n_boot, alpha, random_state, where)
     x_codes, y_codes = (np.unique(v, return_inverse=True)[1].ravel() for v in (x, y))
     reps = []
-    for counts in _bootstrap_counts(n_groups, n_boot, rng, len(x)):
+    for counts in bootstrap_counts(n_groups, n_boot, rng, len(x)):
         w = counts[:, codes].astype(float)  # every row weighted by its student's multiplicity
         if method == "spearman":
             reps.append(_weighted_r(w, _midranks(w, x_codes), _midranks(w, y_codes)))
@@ -193,16 +193,16 @@ def correlation_ci(x, y, method: str = "pearson", alpha: float = 0.05, groups=No
     methods = ("pearson", "spearman")
     if method not in methods:
         raise EvaluationError(f"{where}: 'method' must be one of {methods}; got {method!r}.")
-    level = _alpha(alpha, where)
-    X, _ = _matrix(x, where, "x")
-    Y, _ = _matrix(y, where, "y")
+    level = check_alpha(alpha, where)
+    X, _ = as_matrix(x, where, "x")
+    Y, _ = as_matrix(y, where, "y")
     if X.shape[1] != 1 or Y.shape[1] != 1:
         raise EvaluationError(f"{where}: 'x' and 'y' must be single columns; got {X.shape[1]} and {Y.shape[1]}.")
     arrays = {"x": X[:, 0], "y": Y[:, 0]}
     if groups is not None:
-        g = _vector(groups, where, "groups")
+        g = check_vector(groups, where, "groups")
         arrays["groups"] = np.unique(g, return_inverse=True)[1].ravel().astype(float)
-    data, dropped = _complete(where, missing, arrays)
+    data, dropped = complete_cases(where, missing, arrays)
     xs, ys, n = data["x"], data["y"], len(data["x"])
     if n < 4:
         raise EvaluationError(f"{where}: needs at least 4 complete rows; got {n}.")
@@ -223,7 +223,7 @@ def correlation_ci(x, y, method: str = "pearson", alpha: float = 0.05, groups=No
 
 # -- standalone association and spread -----------------------------------------------------------------
 @dataclass(frozen=True)
-class StandaloneAssociation(_Fields):
+class StandaloneAssociation(Fields):
     """How a rule's per-unit value alone relates to the label.
 
     ``auc`` ranks units by the raw value; the other fields judge the flag ``value > 0`` (or
@@ -260,8 +260,8 @@ def standalone_association(y, value, threshold: float | None = None) -> Standalo
     (0.8333333333333334, 1.0, 1)
     """
     where = "standalone_association"
-    labels = _vector(y, where, "y")
-    values = _outcome(value, where, "value")
+    labels = check_vector(y, where, "y")
+    values = as_outcome(value, where, "value")
     if len(values) != len(labels):
         raise EvaluationError(f"{where}: 'y' has {len(labels)} rows but 'value' has {len(values)}.")
     if threshold is not None and not (isinstance(threshold, (int, float, np.number)) and np.isfinite(threshold)):
@@ -269,7 +269,7 @@ def standalone_association(y, value, threshold: float | None = None) -> Standalo
     used = ~np.isnan(values)
     if not used.any():
         raise EvaluationError(f"{where}: every 'value' is missing; nothing to evaluate.")
-    positive = _binary(labels[used], where)
+    positive = check_binary(labels[used], where)
     v = values[used]
     flag = v > 0 if threshold is None else v >= threshold
     tp, support, n_pos = int((flag & positive).sum()), int(flag.sum()), int(positive.sum())
@@ -281,7 +281,7 @@ def standalone_association(y, value, threshold: float | None = None) -> Standalo
 
 
 @dataclass(frozen=True)
-class Spread(_Fields):
+class Spread(Fields):
     """Spread of a statistic across populations; ``sd`` uses ddof=1 (NaN for one population)."""
 
     min: float

@@ -62,7 +62,7 @@ def platform(seed: int, n_students: int, link: float):
         log = EventLog(data.events)
     X = data.windows[["student", "start", "end"]]
     mined = LogFeatures(log, families=["correctness"], prune=False).fit_transform(X)
-    rules = RuleFeatures(RULE, log).fit_transform(X)
+    rules = RuleFeatures(log, RULE).fit_transform(X)
     return X["student"].astype(str).to_numpy(), data.windows["label"].to_numpy(), mined, rules
 
 

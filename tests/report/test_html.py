@@ -27,8 +27,8 @@ import rulefeat
 from rulefeat.errors import EvaluationError, LogRepairWarning
 from rulefeat.evaluate import incremental_value_precomputed
 from rulefeat.evaluate.value.engine import demo_rules_path
-from rulefeat.evaluate.value.report import IncrementalValueReport
 from rulefeat.report.html import format_value, html_view, p_value_text, save_html
+from rulefeat.report.value import IncrementalValueReport
 from rulefeat.simulate import tutor_logs
 
 matplotlib.use("Agg")
@@ -327,7 +327,7 @@ def test_regression_report_renders_without_roc(tmp_path):
     rows = {row[0][1]: row for row in _cells(html, "value")}
     assert [k for k, _ in rows["combined"]] == ["key"] + ["num"] * 6  # no DeLong column for R²
     assert rows["combined"][3][1] == f"{report.summary().set_index('variant').loc['combined', 'r2_delta']:+.3f}"
-    assert "R², folds mean ± sd" in page.all_text() and "RMSE ↓" in page.all_text()
+    assert "R² (folds, mean ± sd)" in page.all_text() and "RMSE (lower is better)" in page.all_text()
 
 
 # -- bad inputs ----------------------------------------------------------------------------------------------

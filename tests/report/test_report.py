@@ -15,9 +15,10 @@ from matplotlib.figure import Figure
 from sklearn.metrics import roc_auc_score, roc_curve
 
 import rulefeat.report.figures as plots
-import rulefeat.report.markdown as report_text
+import rulefeat.report.markdown as report_markdown
+import rulefeat.report.tables as report_text
 from rulefeat.errors import EvaluationError
-from rulefeat.evaluate.value.report import IncrementalValueReport
+from rulefeat.report.value import IncrementalValueReport
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402  (only to check that the report leaves pyplot alone)
@@ -480,6 +481,6 @@ def test_save_refuses_an_unwritable_folder(report, tmp_path):
 
 
 def test_docstring_examples_run():
-    for module in (plots, report_text):
+    for module in (plots, report_text, report_markdown):
         failed, attempted = doctest.testmod(module, optionflags=doctest.ELLIPSIS)
         assert attempted > 0 and failed == 0, module.__name__

@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 from sklearn.metrics import roc_auc_score
 
-import rulefeat.simulate as simulate
+import rulefeat.simulate.generate as simulate
 from rulefeat.errors import RulefeatError, SimulationError
 from rulefeat.simulate import BEHAVIOURS, tutor_logs
 

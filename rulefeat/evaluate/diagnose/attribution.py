@@ -4,7 +4,7 @@
 background data) in the model's raw output space - log-odds for a binary classifier.  The other
 functions work on the returned table: :func:`group_shap` and :func:`shap_by_rule` total the absolute
 attributions of column groups (a rule's ``<rule>__<summary>`` columns against the mined ones), and
-:func:`dependence_data` / :func:`plot_dependence` show one feature's attribution against its value.
+:func:`dependence_data` (drawn by :func:`rulefeat.report.diagnose_figures.plot_dependence`) shows one feature's attribution against its value.
 """
 
 from __future__ import annotations
@@ -15,13 +15,11 @@ from collections.abc import Mapping, Sequence
 
 import numpy as np
 import pandas as pd
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.figure import Figure
 
 from ..._text import did_you_mean
 from ...errors import EvaluationError
 
-__all__ = ["tree_shap", "group_shap", "shap_by_rule", "dependence_data", "plot_dependence", "MINED"]
+__all__ = ["tree_shap", "group_shap", "shap_by_rule", "dependence_data", "MINED"]
 
 # The group of every column that belongs to no rule in :func:`shap_by_rule`.
 MINED = "mined"
@@ -281,33 +279,3 @@ def dependence_data(values: pd.DataFrame, X: pd.DataFrame, feature: str) -> pd.D
                               f"{absent[0]!r}); pass the X given to tree_shap.")
     return pd.DataFrame({"value": X.loc[table.index, feature], "shap": table[feature].astype(float)},
                         index=table.index)
-
-
-def plot_dependence(values: pd.DataFrame, X: pd.DataFrame, feature: str, *, jitter: float = 0.25,
-                    random_state: int | None = 0) -> Figure:
-    """Scatter of a feature's SHAP value against its value (categories on a jittered axis).
-
-    Returns a :class:`matplotlib.figure.Figure` on an Agg canvas (no pyplot, no window).  Categorical,
-    boolean and text features are placed at one position per category, spread by a seeded horizontal
-    ``jitter`` so overlapping points stay visible; missing values are left out and counted in the title.
-    """
-    data = dependence_data(values, X, feature)
-    fig = Figure(figsize=(5.5, 3.8), layout="constrained")
-    FigureCanvasAgg(fig)
-    ax = fig.subplots()
-    known = data["value"].notna().to_numpy()
-    shown = data[known]
-    numeric = pd.api.types.is_numeric_dtype(shown["value"]) and not pd.api.types.is_bool_dtype(shown["value"])
-    if numeric:
-        ax.scatter(shown["value"].astype(float), shown["shap"], s=10, alpha=0.6, color="#4c72b0")
-    else:
-        codes, labels = pd.factorize(shown["value"], sort=True)
-        spread = np.random.default_rng(random_state).uniform(-jitter, jitter, len(codes))
-        ax.scatter(codes + spread, shown["shap"], s=10, alpha=0.6, color="#4c72b0")
-        ax.set_xticks(range(len(labels)), [str(v) for v in labels])
-    ax.axhline(0.0, color="grey", linewidth=0.8)
-    ax.set_xlabel(str(feature))
-    ax.set_ylabel("SHAP value")
-    note = f" ({int((~known).sum())} missing not shown)" if (~known).any() else ""
-    ax.set_title(f"Dependence of the model on {feature}{note}")
-    return fig

@@ -86,9 +86,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from ...errors import EvaluationError
+from ...report.diagnostics import RuleDiagnostics
 from ..models import default_model, model_threads, thread_budget
+from ..seeds import Seeds
 from ..splits import student_folds
-from ..value.engine import _int, _Seeds
 from . import stats as dstats
 from .folds import FoldJob, primary_summary, run_folds
 from .inputs import (
@@ -102,7 +103,6 @@ from .inputs import (
     rules_transformer,
 )
 from .pool import pool, pool_shap, shap_groups, student_table, unit_table
-from .report import RuleDiagnostics
 
 __all__ = ["diagnose", "RuleDiagnostics"]
 
@@ -118,13 +118,6 @@ class _Context:
     outcome: np.ndarray | None
     n_boot: int
     boot_seed: int
-
-
-def _seeds(random_state) -> tuple[_Seeds, np.random.SeedSequence]:
-    """The evaluation's seeds (so splits and models match incremental_value) and a sequence for SHAP samples."""
-    entropy = np.random.SeedSequence().entropy if random_state is None else int(random_state)
-    extra = np.random.SeedSequence(entropy).spawn(6)[5]  # children 0-4 are the evaluation's own
-    return _Seeds(entropy, 1), extra
 
 
 def _outcome_per_student(outcomes, outcome, inputs, notes):
@@ -315,7 +308,7 @@ def diagnose(log, units, y, rules, *, mined=None, model=None, cv=5, population=N
     notes = list(inputs.notes)
     series = _outcome_per_student(outcomes, outcome, inputs, notes)
     rules_tf, ruleset = rules_transformer(rules, log, unit)
-    seeds, shap_sequence = _seeds(settings["random_state"])
+    seeds = Seeds(settings["random_state"], 1, WHERE)  # the tree of incremental_value: same splits and models
     folds = student_folds(inputs.y, inputs.students, settings["cv"], 1, seeds.splits, "classification", where=WHERE)
     classifier, regressor, workers, threads = _models(model, folds, seeds, n_jobs, notes)
     reason = _shap_reason(model, settings["shap_sample"])
@@ -324,7 +317,7 @@ def diagnose(log, units, y, rules, *, mined=None, model=None, cv=5, population=N
     job = FoldJob(inputs.X, inputs.y, log, mined_transformer(mined, log, unit, seeds.features), rules_tf,
                   classifier, regressor, settings["shap_sample"], reason is None, threads if workers > 1 else None)
     t1 = time.perf_counter()
-    results = run_folds(job, folds, [_int(s) for s in shap_sequence.spawn(len(folds))], workers,
+    results = run_folds(job, folds, seeds.shap(len(folds)), workers,
                         settings["verbose"])
     t2 = time.perf_counter()
     _emit(results, notes)

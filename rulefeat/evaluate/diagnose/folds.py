@@ -7,12 +7,9 @@ describes its held-out units and students, so pooling the folds gives out-of-fol
 from __future__ import annotations
 
 import re
-import sys
-import time
 import warnings
 from dataclasses import dataclass, field
 
-import joblib
 import numpy as np
 import pandas as pd
 from sklearn.base import clone
@@ -20,8 +17,9 @@ from threadpoolctl import threadpool_limits
 
 from ..._aggregate import Aggregator
 from ...errors import EvaluationError
-from ..folds import _dense, _names, _predict
+from ..folds import column_names, dense, predict_scores, run_parallel
 from ..splits import Fold
+from .attribution import tree_shap
 from .inputs import WHERE
 
 __all__ = ["FoldJob", "FoldResult", "primary_summary", "run_folds"]
@@ -87,11 +85,11 @@ def _features(job: FoldJob, fold: Fold) -> _Features:
     Xtr, Xte, y_tr = job.X.iloc[fold.train], job.X.iloc[fold.test], job.y[fold.train]
     mined = clone(job.mined)
     raw = mined.fit_transform(Xtr, y_tr)
-    names = _names(mined, raw, "mined")
-    mined_test = _dense(mined.transform(Xte))
+    names = column_names(mined, raw, "mined")
+    mined_test = dense(mined.transform(Xte))
     rules = clone(job.rules)
     rules_train = rules.fit_transform(Xtr, y_tr)
-    return _Features(_dense(raw), mined_test, names, rules_train, rules.transform(Xte), rules)
+    return _Features(dense(raw), mined_test, names, rules_train, rules.transform(Xte), rules)
 
 
 def _fit_predict(prototype, Z_train, target, Z_test, kind: str, where: str) -> np.ndarray:
@@ -101,7 +99,7 @@ def _fit_predict(prototype, Z_train, target, Z_test, kind: str, where: str) -> n
     est = clone(prototype)
     try:
         est.fit(Z_train, target.astype(int) if kind == "classification" else target)
-        return _predict(est, Z_test, kind)
+        return predict_scores(est, Z_test, kind)
     except EvaluationError:
         raise
     except Exception as exc:
@@ -144,8 +142,6 @@ def _redundancy(job, feats, counts_train, columns, where) -> tuple[dict, dict]:
 
 
 def _shap(job, feats, y_train, seed: int, where: str) -> dict:
-    from .attribution import tree_shap
-
     rule_names = [str(c) for c in feats.rules_train.columns]
     names = feats.mined_names + rule_names
     dupes = sorted({n for n in names if names.count(n) > 1})
@@ -206,14 +202,5 @@ def run_fold(job: FoldJob, fold: Fold, seed: int) -> FoldResult:
 
 
 def run_folds(job: FoldJob, folds: list, seeds: list, workers: int, verbose: int) -> list:
-    """Every fold through ``joblib.Parallel`` (so ``joblib.parallel_config`` applies), in fold order."""
-    start, out = time.perf_counter(), []
-    parallel = joblib.Parallel(n_jobs=workers, return_as="generator")
-    for result in parallel(joblib.delayed(run_fold)(job, f, s) for f, s in zip(folds, seeds, strict=True)):
-        out.append(result)
-        if verbose:
-            sys.stderr.write(f"\r{WHERE}: {len(out)}/{len(folds)} folds, {time.perf_counter() - start:.1f} s")
-            if len(out) == len(folds):
-                sys.stderr.write("\n")
-            sys.stderr.flush()
-    return out
+    """Every fold of :func:`diagnose` through the evaluation's one fold loop, in fold order."""
+    return run_parallel(run_fold, [(job, f, s) for f, s in zip(folds, seeds, strict=True)], workers, verbose, WHERE)

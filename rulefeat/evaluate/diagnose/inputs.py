@@ -12,9 +12,12 @@ import numpy as np
 import pandas as pd
 from sklearn.base import clone
 
+from ... import _frame
 from ..._text import did_you_mean
 from ...errors import EvaluationError
-from ..inputs import _codes, _log_populations, check_units, read_target
+from ...rules.transformer import RuleFeatures, as_ruleset
+from .. import transformers
+from ..inputs import check_units, label_codes, log_populations, read_target
 from ..splits import check_splitter
 
 __all__ = ["WHERE", "UnitInputs", "check_settings", "prepare_units", "read_outcomes", "rules_transformer",
@@ -76,7 +79,7 @@ def _binary_label(values: pd.Series) -> tuple[np.ndarray, object]:
 def _unit_populations(X, population, log, log_codes, notes) -> tuple[np.ndarray, list, str | None]:
     if population is None:
         if log.has("population"):
-            codes, names = _log_populations(log, log_codes, notes)
+            codes, names = log_populations(log, log_codes, notes)
             return codes, names, "log"
         return np.full(len(X), -1, dtype=np.int64), [], None
     cols = [str(c) for c in X.columns]
@@ -84,7 +87,7 @@ def _unit_populations(X, population, log, log_codes, notes) -> tuple[np.ndarray,
         raise EvaluationError(f"The 'population' parameter of {WHERE} must name a column of units (or be None to "
                               f"use the log's population field). Got {population!r}."
                               f"{did_you_mean(str(population), cols)} Columns: {cols!r}.")
-    codes, names = _codes(X[population].reset_index(drop=True))
+    codes, names = label_codes(X[population].reset_index(drop=True))
     return codes, names, population
 
 
@@ -98,7 +101,7 @@ def prepare_units(log, units, y, population, unit) -> UnitInputs:
     log_codes = log.student_codes(labels, missing="error", where=WHERE)
     notes: list = []
     pops, names, source = _unit_populations(X, population, log, log_codes, notes)
-    students, _ = _codes(labels)
+    students, _ = label_codes(labels)
     return UnitInputs(X, y_coded, positive, students, labels.to_numpy(), log_codes, pops, names, source, notes)
 
 
@@ -117,9 +120,9 @@ def _outcome_values(outcomes: pd.DataFrame, outcome: str) -> pd.Series:
         raise EvaluationError(f"The 'outcome' parameter of {WHERE} must name a column of outcomes or be 'gain'. "
                               f"Got {outcome!r}.{did_you_mean(str(outcome), options)} Columns: {cols!r}.")
     values = outcomes[outcome]
-    if pd.api.types.is_bool_dtype(values.dtype):
+    if _frame.is_bool_dtype(values.dtype):
         return values.astype("float64")
-    if not pd.api.types.is_numeric_dtype(values.dtype):
+    if not _frame.is_number_dtype(values.dtype):
         raise EvaluationError(f"{WHERE}: the outcome column {outcome!r} must be numeric (a score, or 0/1); got "
                               f"dtype {values.dtype}. Encode it first.")
     return values.astype("float64")
@@ -150,8 +153,6 @@ def read_outcomes(outcomes, outcome) -> pd.Series:
 # -- transformers and models -------------------------------------------------------------------------------
 def rules_transformer(rules, log, unit):
     """A RuleFeatures on ``log`` (built from the rules, or the given one): its fitted program gives firings."""
-    from ...rules.transformer import RuleFeatures, as_ruleset
-
     if isinstance(rules, RuleFeatures):
         if rules.log is not log:
             raise EvaluationError(f"{WHERE}: the RuleFeatures given as 'rules' reads a different EventLog than "
@@ -167,9 +168,7 @@ def rules_transformer(rules, log, unit):
 
 def mined_transformer(mined, log, unit, seed: int):
     """``mined``: None (default LogFeatures), a dict of LogFeatures parameters, or a transformer on ``log``."""
-    from ..value.engine import _mined_transformer
-
-    return _mined_transformer(mined, log, unit, seed, where=WHERE)
+    return transformers.mined_transformer(mined, log, unit, seed, where=WHERE)
 
 
 def check_classifier(model):

@@ -10,6 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ..._version import __version__
 from ...stats import inference as stats
 from .. import guards
 from ..inputs import population_summary
@@ -279,7 +280,6 @@ def _versions(ctx) -> dict:
     import lightgbm
     import sklearn
 
-    from ... import __version__
 
     return {"rulefeat": __version__, "python": platform.python_version(), "numpy": np.__version__,
             "pandas": pd.__version__, "scikit-learn": sklearn.__version__, "lightgbm": lightgbm.__version__,

@@ -16,38 +16,21 @@ import pandas as pd
 from sklearn.base import clone
 from sklearn.pipeline import FeatureUnion, Pipeline
 
+from ... import _frame
 from ..._text import did_you_mean
 from ...errors import EvaluationError
+from ...report.value import IncrementalValueReport
 from ..folds import Job, PrecomputedSource, Task, TransformerSource, run_all
 from ..inputs import WHERE, prepare, prepare_precomputed
 from ..models import available_cores, default_model, model_threads, thread_budget
+from ..seeds import Seeds
 from ..splits import check_splitter, population_folds, student_folds
+from ..transformers import mined_transformer, rules_transformer
 from . import assemble as _assemble
 
 __all__ = ["incremental_value", "incremental_value_precomputed", "make_detector"]
 
 ALTERNATIVES = ("greater", "two-sided")
-
-
-class _Seeds:
-    """Independent seeds for splits, model, features, bootstrap and learning curve, all from one random_state."""
-
-    def __init__(self, random_state, repeats: int):
-        if random_state is not None and (isinstance(random_state, bool) or not isinstance(
-                random_state, (int, np.integer)) or random_state < 0):
-            raise EvaluationError(f"The 'random_state' parameter of {WHERE} must be None or a non-negative int. "
-                                  f"Got {random_state!r} instead.")
-        splits, model, features, boot, curve = np.random.SeedSequence(random_state).spawn(5)
-        self.splits = [_int(s) for s in splits.spawn(repeats)]
-        self.model, self.features, self.boot = _int(model), _int(features), _int(boot)
-        self._curve = curve
-
-    def curve(self, n: int) -> list[int]:
-        return [_int(s) for s in self._curve.spawn(n)]
-
-
-def _int(seq: np.random.SeedSequence) -> int:
-    return int(seq.generate_state(1, dtype=np.uint32)[0] >> 1)  # < 2**31, accepted by every library
 
 
 def _positive_int(value, name: str, minimum: int = 1) -> int:
@@ -98,50 +81,6 @@ def _check_model(model, task: str):
     return model
 
 
-def _ruleset(rules):
-    from ...rules.transformer import as_ruleset
-
-    return as_ruleset(rules)
-
-
-def _same_log(transformer, log, name: str, where: str = WHERE):
-    """A transformer given ready-made must read the evaluation's log, or its features describe other events."""
-    own = getattr(transformer, "log", log)
-    if own is not log:
-        raise EvaluationError(f"{where}: the {name} transformer reads a different EventLog than the 'log' argument "
-                              f"({own!r} vs {log!r}). Build it with log=<the same log>.")
-    return transformer
-
-
-def _rules_transformer(rules, log, unit):
-    """The rule-features transformer (a RuleFeatures or a transformer with a ``rules`` attribute) and its rules."""
-    from ...rules.transformer import RuleFeatures
-
-    if hasattr(rules, "fit") and hasattr(rules, "transform"):
-        return _same_log(rules, log, "rules"), _ruleset(rules.rules)
-    ruleset = _ruleset(rules)
-    return RuleFeatures(rules=ruleset, log=log, unit=unit), ruleset
-
-
-def _mined_transformer(mined, log, unit, seed: int, where: str = WHERE):
-    """``mined``: None (default LogFeatures), a dict of LogFeatures parameters, or any transformer."""
-    from ...mined.transformer import LogFeatures
-
-    if mined is None:
-        return LogFeatures(log=log, unit=unit, random_state=seed)
-    if isinstance(mined, dict):
-        allowed = [k for k in LogFeatures(log=log).get_params() if k not in ("log", "unit")]
-        for key in mined:
-            if key not in allowed:
-                raise EvaluationError(f"The 'mined' parameter of {where} has an unknown LogFeatures parameter "
-                                      f"{key!r}.{did_you_mean(str(key), allowed)} Allowed: {allowed!r}.")
-        return LogFeatures(log=log, unit=unit, **{"random_state": seed, **mined})
-    if hasattr(mined, "fit") and hasattr(mined, "transform") and hasattr(mined, "get_params"):
-        return _same_log(mined, log, "mined", where)
-    raise EvaluationError(f"The 'mined' parameter of {where} must be None, a dict of LogFeatures parameters, or a "
-                          f"scikit-learn transformer (e.g. LogFeatures(...)). Got {type(mined).__name__}.")
-
-
 def _rule_info(ruleset) -> list[dict]:
     return [{"name": r.name, "means": r.means, "why": r.why, "when": r.when, "report": list(r.report)}
             for r in ruleset]
@@ -190,23 +129,21 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
 
 
 def _report(results, oof, oof_transfer):
-    from .report import IncrementalValueReport
-
     return IncrementalValueReport(results, oof, oof_transfer)
 
 
-def compute_incremental_value(log, units, y, rules, model=None, cv=5, repeats=1, population=None, unit="window",
-                              mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000,
+def compute_incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, population=None,
+                              unit="window", mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000,
                               alternative="greater", learning_curve=(0.25, 0.5, 1.0), ablation=True,
-                              transfer=True, task="auto", *, command=None):
+                              transfer=True, task="auto", command=None):
     """Same as :func:`incremental_value` but returns ``(results, oof, oof_transfer)`` instead of the report."""
     t0 = time.perf_counter()
     settings = _settings(cv, repeats, n_boot, alternative, learning_curve, ablation, transfer, verbose,
                          random_state, unit)
     inputs = prepare(log, units, y, population, unit, task)
-    seeds = _Seeds(random_state, settings["repeats"])
-    rules_tf, ruleset = _rules_transformer(rules, log, unit)
-    mined_tf = _mined_transformer(mined, log, unit, seeds.features)
+    seeds = Seeds(random_state, settings["repeats"], WHERE)
+    rules_tf, ruleset = rules_transformer(rules, log, unit)
+    mined_tf = mined_transformer(mined, log, unit, seeds.features)
     info = _rule_info(ruleset)
     source = TransformerSource(inputs.X, mined_tf, rules_tf, list(ruleset.names))
     data = {"n_events": len(log), "log": log.summary()}
@@ -214,9 +151,9 @@ def compute_incremental_value(log, units, y, rules, model=None, cv=5, repeats=1,
                      data, [], command, t0)
 
 
-def incremental_value(log, units, y, rules, model=None, cv=5, repeats=1, population=None, unit="window",
+def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, population=None, unit="window",
                       mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000, alternative="greater",
-                      learning_curve=(0.25, 0.5, 1.0), ablation=True, transfer=True, task="auto", *,
+                      learning_curve=(0.25, 0.5, 1.0), ablation=True, transfer=True, task="auto",
                       command=None):
     """Student-grouped evaluation of how much expert rules add to mined log features.
 
@@ -298,11 +235,11 @@ def incremental_value(log, units, y, rules, model=None, cv=5, repeats=1, populat
         learning_curve=learning_curve, ablation=ablation, transfer=transfer, task=task, command=command))
 
 
-def _frame(table, name: str) -> pd.DataFrame:
+def _feature_table(table, name: str) -> pd.DataFrame:
     if not isinstance(table, pd.DataFrame):
         raise EvaluationError(f"{WHERE}: {name!r} must be a pandas DataFrame of numeric features. Got "
                               f"{type(table).__name__}.")
-    bad = [str(c) for c in table.columns if not pd.api.types.is_numeric_dtype(table[c].dtype)]
+    bad = [str(c) for c in table.columns if not _frame.is_number_dtype(table[c].dtype)]
     if bad:
         raise EvaluationError(f"{WHERE}: {name!r} has non-numeric columns {bad[:5]!r}; encode them first.")
     return table
@@ -334,12 +271,12 @@ def compute_incremental_value_precomputed(mined, rules, y, students, *, rule_col
     t0 = time.perf_counter()
     settings = _settings(cv, repeats, n_boot, alternative, learning_curve, ablation, transfer, verbose,
                          random_state, "precomputed")
-    mined, rules = _frame(mined, "mined"), _frame(rules, "rules")
+    mined, rules = _feature_table(mined, "mined"), _feature_table(rules, "rules")
     if len(mined) != len(rules):
         raise EvaluationError(f"{WHERE}: 'mined' has {len(mined)} rows and 'rules' {len(rules)}; both need one "
                               "row per unit, in the same order.")
     inputs = prepare_precomputed(len(mined), y, students, population, task)
-    seeds = _Seeds(random_state, settings["repeats"])
+    seeds = Seeds(random_state, settings["repeats"], WHERE)
     blocks = _precomputed_rules(rules, rule_columns)
     values = np.hstack([mined.to_numpy(dtype=float), rules.to_numpy(dtype=float)])
     names = [f"mined__{c}" for c in mined.columns] + [f"rules__{c}" for c in rules.columns]
@@ -394,7 +331,7 @@ task, command
         command=command))
 
 
-def make_detector(log, rules, unit="window", model=None, mined=None, random_state=None, *,
+def make_detector(log, rules, *, unit="window", model=None, mined=None, random_state=None,
                   task: str = "classification") -> Pipeline:
     """The combined detector to ship: ``Pipeline([features: FeatureUnion(mined, rules), model])``.
 
@@ -420,9 +357,9 @@ def make_detector(log, rules, unit="window", model=None, mined=None, random_stat
     -------
     sklearn.pipeline.Pipeline
     """
-    seeds = _Seeds(random_state, 1)  # the same seeds incremental_value gives the combined variant
-    rules_tf, _ = _rules_transformer(rules, log, unit)
-    mined_tf = _mined_transformer(mined, log, unit, seeds.features)
+    seeds = Seeds(random_state, 1, WHERE)  # the same seeds incremental_value gives the combined variant
+    rules_tf, _ = rules_transformer(rules, log, unit)
+    mined_tf = mined_transformer(mined, log, unit, seeds.features)
     if model is None:
         model = default_model(task, seeds.model, available_cores())
     union = FeatureUnion([("mined", clone(mined_tf)), ("rules", clone(rules_tf))]).set_output(transform="pandas")

@@ -14,10 +14,10 @@ from rulefeat.evaluate.diagnose.attribution import (
     _positive_class,
     dependence_data,
     group_shap,
-    plot_dependence,
     shap_by_rule,
     tree_shap,
 )
+from rulefeat.report.diagnose_figures import plot_dependence
 
 SETTINGS = {"n_estimators": 25, "num_leaves": 7, "min_child_samples": 10, "deterministic": True,
             "force_row_wise": True, "n_jobs": 1, "random_state": 0, "verbose": -1}

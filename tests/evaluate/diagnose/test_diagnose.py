@@ -22,8 +22,8 @@ from rulefeat import EventLog, LogFeatures, Rule, RuleFeatures
 from rulefeat.errors import EvaluationError, LogRepairWarning
 from rulefeat.evaluate.diagnose.engine import diagnose
 from rulefeat.evaluate.diagnose.inputs import regression_counterpart
-from rulefeat.evaluate.diagnose.report import RuleDiagnostics
 from rulefeat.evaluate.value.engine import compute_incremental_value
+from rulefeat.report.diagnostics import RuleDiagnostics
 from rulefeat.simulate import tutor_logs
 
 # Hint skimming planted with a strong label link (and no other behaviour linked), skimming three times as common.

@@ -251,7 +251,7 @@ def test_leaky_out_of_fold_norms_are_optimistic_where_in_fold_ones_are_not(sim):
     assert in_fold == [0.5] * 5
     # Leaky: the same norm fitted once on all students (test students' own labels included) before the split.
     leaky = StudentLabelRate().fit(X, y).transform(X)
-    rules = RuleFeatures(STATELESS_RULES, log).fit_transform(X)
+    rules = RuleFeatures(log, STATELESS_RULES).fit_transform(X)
     out, _, _ = compute_incremental_value_precomputed(leaky, rules, y, X["student"], model=lr(), random_state=0,
                                                       **LIGHT)
     optimistic = [f["auc"] for f in out["folds"] if f["variant"] == "mined"]
@@ -264,7 +264,7 @@ def test_precomputed_path_equals_the_in_fold_path_for_stateless_features(sim):
     kw = dict(model=lr(), random_state=4, n_boot=100, transfer=False, learning_curve=(0.5, 1.0))
     live, oof_live, _ = compute_incremental_value(log, X, y, STATELESS_RULES, mined={**FAST, "prune": False}, **kw)
     mined = LogFeatures(log, prune=False, **FAST).fit_transform(X)
-    rules = RuleFeatures(STATELESS_RULES, log).fit_transform(X)
+    rules = RuleFeatures(log, STATELESS_RULES).fit_transform(X)
     pre, oof_pre, _ = compute_incremental_value_precomputed(mined, rules, y, X["student"], **kw)
     for key in ("variants", "comparisons", "per_rule", "folds", "learning_curve", "feature_counts"):
         assert pre[key] == live[key], key
@@ -371,7 +371,7 @@ def test_progress_bar_on_stderr(sim, capsys):
     _, log, X, y = sim
     compute_incremental_value(log, X, y, STATELESS_RULES, model=lr(), mined=FAST, verbose=1, **LIGHT)
     err = capsys.readouterr().err
-    assert "incremental_value [" in err and "5/5 folds" in err
+    assert "incremental_value" in err and "5/5" in err and "fold" in err
 
 
 def test_incremental_value_returns_the_report(sim):
@@ -413,7 +413,7 @@ def test_bad_inputs(sim, kwargs, match):
 
 def test_rules_without_features_get_no_ablation_rows(sim):
     _, log, X, y = sim
-    rules = RuleFeatures(STATELESS_RULES, log, select=["guess_after_error"])
+    rules = RuleFeatures(log, STATELESS_RULES, select=["guess_after_error"])
     res, oof, _ = compute_incremental_value(log, X, y, rules, model=lr(), mined=FAST,
                                             **{**LIGHT, "ablation": True})
     assert [r["rule"] for r in res["per_rule"]] == ["guess_after_error"]
@@ -429,7 +429,7 @@ def test_ready_made_transformers_must_read_the_same_log(sim):
     with pytest.raises(EvaluationError, match="the mined transformer reads a different EventLog"):
         compute_incremental_value(log, X, y, STATELESS_RULES, model=lr(), mined=LogFeatures(other), **LIGHT)
     with pytest.raises(EvaluationError, match="the rules transformer reads a different EventLog"):
-        compute_incremental_value(log, X, y, RuleFeatures(STATELESS_RULES, other), model=lr(), mined=FAST, **LIGHT)
+        compute_incremental_value(log, X, y, RuleFeatures(other, STATELESS_RULES), model=lr(), mined=FAST, **LIGHT)
 
 
 def test_students_missing_from_the_log_are_named(sim):

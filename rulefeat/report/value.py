@@ -11,16 +11,17 @@ from __future__ import annotations
 
 import copy
 import json
-import math
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from ..._text import did_you_mean
-from ...errors import EvaluationError
-from ...report.markdown import LOWER_IS_BETTER, METRIC_LABELS, metric_order, render_markdown, signed, tables
+from .._text import did_you_mean
+from ..errors import EvaluationError
+from .markdown import render_markdown
+from .plain import to_plain
+from .tables import LOWER_IS_BETTER, METRIC_LABELS, metric_order, signed, tables
 
 __all__ = ["IncrementalValueReport"]
 
@@ -75,29 +76,9 @@ def _check_oof(oof, name: str, columns: Sequence[str]) -> pd.DataFrame:
     return oof
 
 
-# -- JSON ----------------------------------------------------------------------------------------
-def _plain(value, path: str = "results", where: str = "IncrementalValueReport.to_json"):
-    """A JSON-ready copy: numpy scalars to Python, NaN and infinities to None, tuples to lists."""
-    if isinstance(value, Mapping):
-        return {str(k): _plain(v, f"{path}[{k!r}]", where) for k, v in value.items()}
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [_plain(v, f"{path}[{i}]", where) for i, v in enumerate(list(value))]
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if value is None or isinstance(value, (str, int, bool)):
-        return value
-    if value is pd.NA or value is pd.NaT:
-        return None
-    raise EvaluationError(f"{where}: {path} holds a {type(value).__name__} "
-                          f"({value!r}), which JSON cannot hold; results may contain only str, int, float, "
-                          "bool, None, lists and dicts.")
-
-
 def _plots():
     """The figures module, imported on first use: matplotlib is slow to import and tables do not need it."""
-    from ...report import figures as plots
+    from . import figures as plots
 
     return plots
 
@@ -274,8 +255,8 @@ class IncrementalValueReport:
         return comp["effect"]
 
     def tables(self) -> dict[str, pd.DataFrame]:
-        """Display-ready tables (strings) shared by the Markdown and HTML renderings."""
-        return tables(self)
+        """Display-ready tables (strings), as the Markdown and HTML renderings show them."""
+        return {name: table.frame() for name, table in tables(self).items()}
 
     # -- figures ---------------------------------------------------------------------------------
     def plot_roc(self, variants: Sequence[str] = VARIANTS, repeat: int = 0):
@@ -325,7 +306,7 @@ class IncrementalValueReport:
         indent : int or None
             Spaces per level; None writes one line.
         """
-        return json.dumps(_plain(self.to_dict()), indent=indent, sort_keys=True, allow_nan=False,
+        return json.dumps(to_plain(self.to_dict()), indent=indent, sort_keys=True, allow_nan=False,
                           ensure_ascii=False)
 
     @classmethod
@@ -370,7 +351,7 @@ class IncrementalValueReport:
 
     def save_html(self, path: str | Path, diagnostics=None) -> Path:
         """Write one self-contained HTML page (figures embedded); see :func:`rulefeat.report.html.save_html`."""
-        from ...report.html import save_html
+        from .html import save_html
 
         return save_html(self, path, diagnostics=diagnostics)
 

@@ -14,9 +14,11 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from ...errors import EvaluationError
-from ...report.markdown import CAUTIONS, interval, markdown_table, number, p_text, signed
-from ...report.markdown import count as count_text
+from ..errors import EvaluationError
+from .markdown import markdown_table
+from .plain import to_plain
+from .tables import CAUTIONS, interval, number, p_text, signed
+from .tables import count as count_text
 
 __all__ = ["RuleDiagnostics"]
 
@@ -43,9 +45,7 @@ _TABLE = {
 
 def _plain(value, path: str = "results"):
     """A JSON-ready copy (the evaluation report's own conversion, named for diagnostics)."""
-    from ..value.report import _plain as plain
-
-    return plain(value, path, where=_WHERE)
+    return to_plain(value, path, where=_WHERE)
 
 
 def _check(results) -> dict:
@@ -190,7 +190,7 @@ class RuleDiagnostics:
 
         Empty when SHAP was not computed; dependence plots need the pooled SHAP tables (not kept in JSON).
         """
-        from ...report.diagnose_figures import plot_dependence_of, plot_shap_per_rule, plot_shap_share
+        from .diagnose_figures import plot_dependence_of, plot_shap_per_rule, plot_shap_share
 
         shap = self._results["shap"]
         if not shap.get("available"):
