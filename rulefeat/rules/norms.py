@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import scan
+
 __all__ = ["grouped_quantile", "fit_typical", "fit_zscore", "apply_typical", "apply_zscore"]
 
 
@@ -21,34 +23,24 @@ def _lerp(a: np.ndarray, b: np.ndarray, t: np.ndarray) -> np.ndarray:
     return np.where(t >= 0.5, b - diff * (1 - t), out)
 
 
-def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float,
-                     by_value: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float) -> tuple[np.ndarray, np.ndarray]:
     """(count, q-quantile) of ``values`` for every key ``0..n_keys-1``; NaN where a key has no values.
 
-    Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7).
-    ``by_value`` may give ``argsort(values)`` when the caller already has it.
+    Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7).  The two
+    order statistics each key needs are found by selection inside the key's bucket
+    (:func:`rulefeat.rules.scan.order_statistics`), not by sorting the field.
     """
-    # Sort by value, then stably by key: lexsort's order (ties in value are interchangeable here)
-    # at a fraction of its cost; small key ranges use numpy's radix sort on int16.
-    if by_value is None:
-        by_value = np.argsort(values)
-    small = np.int16 if n_keys < np.iinfo(np.int16).max else np.int64
-    order = by_value[np.argsort(keys[by_value].astype(small), kind="stable")]
-    v, k = values[order], keys[order]
-    count = np.bincount(k, minlength=n_keys)[:n_keys].astype(np.int64)
-    first = np.cumsum(count) - count
-    has = count > 0
-    virtual = (count[has] - 1) * q
+    count = np.bincount(keys, minlength=n_keys)[:n_keys].astype(np.int64)
+    virtual = np.maximum(count - 1, 0) * q
     lo = np.floor(virtual).astype(np.int64)
-    hi = np.minimum(lo + 1, count[has] - 1)
-    at_top = virtual >= count[has] - 1
-    lo = np.where(at_top, count[has] - 1, lo)
-    out = np.full(n_keys, np.nan)
-    if has.any():
-        start = first[has]
-        out[has] = _lerp(v[start + lo], v[start + hi], virtual - np.floor(virtual))
-        out[has] = np.where(at_top, v[start + count[has] - 1], out[has])
-    return count, out
+    top = np.maximum(count - 1, 0)
+    at_top = virtual >= top
+    lo = np.where(at_top, top, lo)
+    hi = np.minimum(lo + 1, top)
+    _, low, high = scan.order_statistics(np.ascontiguousarray(values, dtype=np.float64),
+                                         np.ascontiguousarray(keys, dtype=np.int64), n_keys, lo, hi)
+    out = np.where(at_top, low, _lerp(low, high, virtual - np.floor(virtual)))
+    return count, np.where(count > 0, out, np.nan)
 
 
 def _grouped_moments(values: np.ndarray, keys: np.ndarray, n_keys: int):
@@ -73,21 +65,11 @@ def _training(values: np.ndarray, keys: np.ndarray, among: np.ndarray | None):
 
 
 def fit_typical(values: np.ndarray, keys: np.ndarray, n_keys: int, *, q: float, min_count: int,
-                among: np.ndarray | None = None, value_order: np.ndarray | None = None) -> dict:
-    """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values.
-
-    ``value_order`` (``argsort(values)``, NaN last) lets several norms of one field share one sort.
-    """
+                among: np.ndarray | None = None) -> dict:
+    """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values."""
     every, v, k = _training(values, keys, among)
     overall = float(np.quantile(every, q)) if len(every) else float("nan")
-    by_value = None
-    if value_order is not None:
-        keyed = ~np.isnan(values) & (keys >= 0)
-        if among is not None:
-            keyed &= among
-        position = np.cumsum(keyed) - 1  # index of each kept event inside v / k
-        by_value = position[value_order[keyed[value_order]]]
-    count, per_key = grouped_quantile(v, k, n_keys, q, by_value=by_value)
+    count, per_key = grouped_quantile(v, k, n_keys, q)
     value = np.where(count >= min_count, per_key, overall)
     return {"count": count, "value": value, "overall": overall}
 
