@@ -56,17 +56,22 @@ def quiet_log(frame: pd.DataFrame, **options) -> EventLog:
 
 
 def measured(fn, repeat: int) -> tuple[float, float, object]:
-    """(median seconds, median extra peak MiB, last result) of ``fn()`` over ``repeat`` runs."""
-    times, peaks, out = [], [], None
+    """(median seconds over ``repeat`` runs, extra peak MiB of one more traced run, last result).
+
+    Timed runs are not traced: tracemalloc slows allocation-heavy Python code several times over.
+    """
+    times, out = [], None
     for _ in range(repeat):
         gc.collect()
-        tracemalloc.start()
         t0 = time.perf_counter()
         out = fn()
         times.append(time.perf_counter() - t0)
-        peaks.append(tracemalloc.get_traced_memory()[1] / 2**20)
-        tracemalloc.stop()
-    return statistics.median(times), statistics.median(peaks), out
+    gc.collect()
+    tracemalloc.start()
+    fn()
+    peak = tracemalloc.get_traced_memory()[1] / 2**20
+    tracemalloc.stop()
+    return statistics.median(times), peak, out
 
 
 def case_windows(repeat: int) -> str:
