@@ -148,7 +148,11 @@ def _logic(ev: Evaluator, node: Logic) -> np.ndarray:
 
 
 def _tri(holds: np.ndarray, missing: np.ndarray) -> np.ndarray:
-    return np.where(missing, UNKNOWN, np.where(holds, TRUE, FALSE)).astype(np.uint8)
+    holds, missing = np.asarray(holds), np.asarray(missing)
+    out = np.array(np.broadcast_to(holds, np.broadcast_shapes(holds.shape, missing.shape)), dtype=np.uint8)
+    out <<= 1  # bool 1/0 -> TRUE (2) / FALSE (0)
+    np.copyto(out, UNKNOWN, where=missing)
+    return out
 
 
 def _codes(ev: Evaluator, node: Node, field: str) -> np.ndarray:

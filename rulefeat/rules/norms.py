@@ -23,23 +23,28 @@ def _lerp(a: np.ndarray, b: np.ndarray, t: np.ndarray) -> np.ndarray:
     return np.where(t >= 0.5, b - diff * (1 - t), out)
 
 
-def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float) -> tuple[np.ndarray, np.ndarray]:
-    """(count, q-quantile) of ``values`` for every key ``0..n_keys-1``; NaN where a key has no values.
+def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float,
+                     among: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """(count, q-quantile) of the non-NaN ``values`` for every key ``0..n_keys-1`` and, last, overall.
 
-    Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7).  The two
-    order statistics each key needs are found by selection inside the key's bucket
-    (:func:`rulefeat.rules.scan.order_statistics`), not by sorting the field.
+    Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7), with
+    numpy's own interpolation so results agree to the bit.  Keys < 0 count only overall;
+    ``among`` (bool) keeps only those events.  The two order statistics each key needs are
+    found by selection inside the key's bucket (:func:`rulefeat.rules.scan.quantile_order_statistics`),
+    not by sorting the field.  NaN where a key has no values.
     """
-    count = np.bincount(keys, minlength=n_keys)[:n_keys].astype(np.int64)
+    use = among is not None
+    count, low, high = scan.quantile_order_statistics(
+        np.ascontiguousarray(values, dtype=np.float64), np.ascontiguousarray(keys),
+        np.ascontiguousarray(among) if use else np.zeros(1, dtype=bool), use, n_keys, float(q))
     virtual = np.maximum(count - 1, 0) * q
-    lo = np.floor(virtual).astype(np.int64)
     top = np.maximum(count - 1, 0)
-    at_top = virtual >= top
-    lo = np.where(at_top, top, lo)
-    hi = np.minimum(lo + 1, top)
-    _, low, high = scan.order_statistics(np.ascontiguousarray(values, dtype=np.float64),
-                                         np.ascontiguousarray(keys, dtype=np.int64), n_keys, lo, hi)
-    out = np.where(at_top, low, _lerp(low, high, virtual - np.floor(virtual)))
+    with np.errstate(invalid="ignore"):  # infinite values: inf - inf, as in numpy's own interpolation
+        lerp = _lerp(low, high, virtual - np.floor(virtual))
+    # A key at its top rank takes its largest value; the overall value is numpy.quantile's own
+    # arithmetic throughout (which differs only for infinite values).
+    out = np.where(virtual >= top, low, lerp)
+    out[n_keys] = lerp[n_keys]
     return count, np.where(count > 0, out, np.nan)
 
 
@@ -67,11 +72,10 @@ def _training(values: np.ndarray, keys: np.ndarray, among: np.ndarray | None):
 def fit_typical(values: np.ndarray, keys: np.ndarray, n_keys: int, *, q: float, min_count: int,
                 among: np.ndarray | None = None) -> dict:
     """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values."""
-    every, v, k = _training(values, keys, among)
-    overall = float(np.quantile(every, q)) if len(every) else float("nan")
-    count, per_key = grouped_quantile(v, k, n_keys, q)
-    value = np.where(count >= min_count, per_key, overall)
-    return {"count": count, "value": value, "overall": overall}
+    count, quantile = grouped_quantile(values, keys, n_keys, q, among)
+    overall = float(quantile[n_keys])
+    value = np.where(count[:n_keys] >= min_count, quantile[:n_keys], overall)
+    return {"count": count[:n_keys], "value": value, "overall": overall}
 
 
 def fit_zscore(values: np.ndarray, keys: np.ndarray, n_keys: int, *, min_count: int,

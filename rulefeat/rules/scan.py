@@ -20,7 +20,7 @@ import numpy as np
 from numba import njit
 
 __all__ = ["group_order", "shift", "count_before", "count_recent_actions", "count_recent_seconds",
-           "streak", "first", "order_statistics"]
+           "streak", "first", "quantile_order_statistics"]
 
 
 @njit(cache=True, nogil=True)
@@ -183,37 +183,60 @@ def _select(a, lo, hi, k):
 
 
 @njit(cache=True, nogil=True)
-def order_statistics(values, keys, n_keys, rank_lo, rank_hi):
-    """Per key: its count and its ``rank_lo``-th and ``rank_hi``-th smallest value (0-based).
+def _ranks(c, q):
+    # numpy.quantile's 'linear' ranks (Hyndman & Fan type 7), in the same float arithmetic.
+    top = max(c - 1, 0)
+    virtual = top * q
+    if virtual >= top:
+        return top, top
+    lo = int(np.floor(virtual))
+    return lo, min(lo + 1, top)
 
-    ``values`` hold no NaN; ``keys`` are in ``0..n_keys-1``.  The values are bucketed by key
-    with a counting sort, then each bucket is partially ordered by selection: O(n) on average,
-    and exact — an order statistic does not depend on how it was found.
+
+@njit(cache=True, nogil=True)
+def quantile_order_statistics(values, keys, among, use_among, n_keys, q):
+    """Per key and overall, the two order statistics of the q-quantile of the training values.
+
+    Training values are those not NaN (and where ``among`` is true, with ``use_among``); the
+    overall bucket (index ``n_keys``) holds all of them, the key buckets those whose key is
+    present (>= 0).  One pass counts, one pass buckets (a counting sort), then each bucket is
+    partially ordered by selection: O(n) on average, and exact — an order statistic does not
+    depend on how it was found.  Returns (count, low, high) with ``n_keys + 1`` entries.
     """
-    count = np.zeros(n_keys + 1, dtype=np.int64)
-    for i in range(len(keys)):
-        count[keys[i] + 1] += 1
-    start = count.copy()
-    for g in range(1, n_keys + 1):
-        start[g] += start[g - 1]
-    fill = start[:n_keys].copy()
-    bucket = np.empty(len(values), dtype=np.float64)
+    count = np.zeros(n_keys + 2, dtype=np.int64)
     for i in range(len(values)):
-        bucket[fill[keys[i]]] = values[i]
-        fill[keys[i]] += 1
-    low = np.full(n_keys, np.nan)
-    high = np.full(n_keys, np.nan)
-    for g in range(n_keys):
+        if values[i] != values[i] or (use_among and not among[i]):
+            continue
+        count[n_keys + 1] += 1
+        if keys[i] >= 0:
+            count[keys[i] + 1] += 1
+    start = count.copy()
+    for g in range(1, n_keys + 2):
+        start[g] += start[g - 1]
+    fill = start[:n_keys + 1].copy()
+    bucket = np.empty(start[n_keys + 1], dtype=np.float64)
+    for i in range(len(values)):
+        if values[i] != values[i] or (use_among and not among[i]):
+            continue
+        bucket[fill[n_keys]] = values[i]
+        fill[n_keys] += 1
+        if keys[i] >= 0:
+            bucket[fill[keys[i]]] = values[i]
+            fill[keys[i]] += 1
+    low = np.full(n_keys + 1, np.nan)
+    high = np.full(n_keys + 1, np.nan)
+    for g in range(n_keys + 1):
         lo, hi = start[g], start[g + 1]
         if hi == lo:
             continue
-        _select(bucket, lo, hi, rank_lo[g])
-        low[g] = bucket[lo + rank_lo[g]]
-        if rank_hi[g] == rank_lo[g]:
+        r_lo, r_hi = _ranks(hi - lo, q)
+        _select(bucket, lo, hi, r_lo)
+        low[g] = bucket[lo + r_lo]
+        if r_hi == r_lo:
             high[g] = low[g]
-        else:  # after selection everything right of the rank_lo-th is >= it: the next one is their minimum
-            best = bucket[lo + rank_lo[g] + 1]
-            for j in range(lo + rank_lo[g] + 2, hi):
+        else:  # after selection everything right of the r_lo-th is >= it: the next one is their minimum
+            best = bucket[lo + r_lo + 1]
+            for j in range(lo + r_lo + 2, hi):
                 best = min(best, bucket[j])
             high[g] = best
     return count[1:], low, high
