@@ -122,6 +122,26 @@ def codes_for(values, categories: pd.Index) -> np.ndarray:
     return np.asarray(idx, dtype=np.int64)
 
 
+def text_labels(categories: pd.Index) -> pd.Index:
+    """The labels of a category field as text (rules name labels as strings), hash-indexed by pandas."""
+    if categories.dtype == object and ptypes.infer_dtype(categories, skipna=False) == "string":
+        return categories
+    if ptypes.is_string_dtype(categories.dtype) and categories.dtype != object:
+        return categories
+    return pd.Index(categories.astype(str), dtype=object)
+
+
+def text_codes(text: pd.Index, labels: list[str]) -> np.ndarray:
+    """Code of each label among ``text`` (from :func:`text_labels`); -1 where absent, the last on repeats."""
+    if text.is_unique:
+        return np.asarray(text.get_indexer(pd.Index(labels, dtype=object)), dtype=np.int64)
+    out = np.full(len(labels), -1, dtype=np.int64)
+    for i, label in enumerate(labels):  # repeated text only where labels of mixed types print alike
+        hits = np.flatnonzero(text == label)
+        out[i] = hits[-1] if len(hits) else -1
+    return out
+
+
 def frame_from_arrays(columns: dict[str, object], index=None) -> pd.DataFrame:
     """A DataFrame that owns writable copies (the log's own arrays are read-only)."""
     return pd.DataFrame(columns, index=index, copy=True)

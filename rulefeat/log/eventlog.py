@@ -338,6 +338,8 @@ class EventLog:
         """A log holding only the events of ``students`` (labels), sharing categories with this one."""
         codes = np.unique(self.student_codes(students, missing="error", where="EventLog.for_students"))
         first, last = self._student_bounds
+        if int((last[codes] - first[codes]).sum()) == len(self):
+            return self  # every event is kept: the log is immutable, so it is its own sub-log
         take = derive.ranges_to_index(first[codes], last[codes])
         return self._subset(take)
 

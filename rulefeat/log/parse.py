@@ -153,9 +153,12 @@ def parse_action(raw: pd.Series, column: str, actions: dict | None):
             rename[str(value)] = str(kind)
     labels = [rename.get(str(c), str(c)) for c in cats]  # a loop over labels, not rows
     full = sorted(set(labels) | set(BASE_ACTIONS))
-    remap = np.array([full.index(lbl) for lbl in labels], dtype=np.int32)
+    position = {label: code for code, label in enumerate(full)}  # linear in labels, not quadratic
+    remap = np.array([position[lbl] for lbl in labels], dtype=np.int32)
     codes = remap[codes] if len(remap) else codes.astype(np.int32)
-    unknown = np.isin(codes, [full.index(k) for k in full if k not in BASE_ACTIONS])
+    base = np.zeros(len(full), dtype=bool)
+    base[[position[k] for k in BASE_ACTIONS]] = True
+    unknown = ~base[codes]
     return codes.astype(np.int32), pd.Index(full, dtype=object), unknown
 
 

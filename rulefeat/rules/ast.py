@@ -24,6 +24,13 @@ __all__ = [
 ]
 
 _NOSPAN = Span(0, 0)
+_FIELD_NAMES: dict[type, tuple[str, ...]] = {}
+
+
+def _field_names(cls: type) -> tuple[str, ...]:
+    if cls not in _FIELD_NAMES:
+        _FIELD_NAMES[cls] = tuple(f.name for f in fields(cls))
+    return _FIELD_NAMES[cls]
 
 
 class Node:
@@ -32,17 +39,23 @@ class Node:
     span: Span
 
     def children(self) -> list[Node]:
-        out = []
-        state = vars(self)
-        for f in fields(self):  # type: ignore[arg-type]
-            value = state[f.name]
-            items = value if isinstance(value, tuple) else (value,)
-            for item in items:
-                if isinstance(item, tuple):  # Apply's (name, value) pairs
-                    item = item[1]
-                if isinstance(item, Node):
-                    out.append(item)
-        return out
+        state = self.__dict__
+        if "_children" not in state:  # nodes are immutable: list the children once
+            out = []
+            for name in _field_names(type(self)):
+                value = state[name]
+                items = value if isinstance(value, tuple) else (value,)
+                for item in items:
+                    if isinstance(item, tuple):  # Apply's (name, value) pairs
+                        item = item[1]
+                    if isinstance(item, Node):
+                        out.append(item)
+            state["_children"] = tuple(out)
+        return list(state["_children"])
+
+    def __getstate__(self) -> dict:
+        # A remembered hash is only valid in the process that computed it (str hashes are salted).
+        return {k: v for k, v in self.__dict__.items() if k not in ("_hash", "_children")}
 
     @cached_property
     def depth(self) -> int:
@@ -157,6 +170,23 @@ class Apply(Node):
             if key == name:
                 return value
         raise KeyError(name)
+
+
+def _remember_hash(cls: type) -> None:
+    """Compute a node's structural hash once: memo lookups on a big tree would otherwise rehash it whole."""
+    plain = cls.__hash__
+
+    def __hash__(self) -> int:
+        state = self.__dict__
+        if "_hash" not in state:
+            state["_hash"] = plain(self)
+        return state["_hash"]
+
+    cls.__hash__ = __hash__
+
+
+for _cls in (Num, Str, Bool, ListLit, Name, Unary, Binary, Logic, Member, Keyword, Call, Field, RuleRef, Apply):
+    _remember_hash(_cls)
 
 
 @dataclass(frozen=True)

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from .. import _frame
 from .._text import did_you_mean
 from ..errors import RuleCheckError
 from ._format import Span, error
@@ -49,18 +50,20 @@ class Schema:
     def __init__(self, log):
         self.log = log
         self.kinds = {name: log.kind(name) for name in log.fields}
-        self._labels: dict[str, dict[str, int]] = {}
+        self._labels: dict = {}
 
     def type_of(self, name: str) -> Type:
         kind = self.kinds[name]
         return category(name) if kind == "category" else (BOOL if kind == "bool" else NUMBER)
 
-    def labels(self, name: str) -> dict[str, int]:
-        """Category labels of a field as text -> code (labels are matched as text)."""
+    def labels(self, name: str):
+        """Category labels of a field as text (labels are matched as text), hash-indexed."""
         if name not in self._labels:
-            cats = self.log.categories(name)
-            self._labels[name] = {str(label): code for code, label in enumerate(cats)}
+            self._labels[name] = _frame.text_labels(self.log.categories(name))
         return self._labels[name]
+
+    def has_label(self, name: str, label: str) -> bool:
+        return bool(_frame.text_codes(self.labels(name), [label])[0] >= 0)
 
 
 @dataclass
@@ -87,7 +90,7 @@ def _literal_number(node: Node) -> float | None:
 class _Checker:
     def __init__(self, rule: str, text: str, schema: Schema, rule_names):
         self.rule, self.text, self.schema = rule, text, schema
-        self.rule_names = set(rule_names)
+        self.rule_names = rule_names if isinstance(rule_names, frozenset) else frozenset(rule_names)
         self.out = Checked(rule, text, tree=None, types={})  # type: ignore[arg-type]
         self.in_among = False
 
@@ -182,8 +185,8 @@ class _Checker:
         raise self.fail(f"cannot compare {lt} with {rt}", node.span)
 
     def label(self, field_name: str, node: Str) -> None:
-        labels = self.schema.labels(field_name)
-        if node.value not in labels:
+        if not self.schema.has_label(field_name, node.value):
+            labels = self.schema.labels(field_name).tolist()
             listing = f" Categories: {sorted(labels)!r}." if len(labels) <= 12 else ""
             raise self.fail(f"{node.value!r} is not a category of {field_name!r}."
                             f"{did_you_mean(node.value, labels)}{listing}", node.span)
@@ -389,14 +392,15 @@ def check_all(entries, log, probe: tuple | None = None) -> CheckedSet:
         if name in schema.kinds:
             raise error(RuleCheckError, f"rule name {name!r} is also a field of the log; rename the rule",
                         rule=name)
-    checked = {name: check_rule(name, text, tree, schema, names) for name, text, tree in entries}
+    known = frozenset(names)  # one set for every rule: checking stays linear in the number of rules
+    checked = {name: check_rule(name, text, tree, schema, known) for name, text, tree in entries}
     order = _topological(checked)
     fitted: dict[str, bool] = {}
     for name in order:
         fitted[name] = bool(checked[name].norms) or any(fitted[d] for d in checked[name].refs)
     extra = None
     if probe is not None:
-        extra = check_rule("", probe[0], probe[1], schema, names, require_bool=False)
+        extra = check_rule("", probe[0], probe[1], schema, known, require_bool=False)
     for rule in (*checked.values(), *([extra] if extra else [])):
         for ref, span in rule.among_refs.items():
             if fitted[ref]:

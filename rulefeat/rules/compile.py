@@ -9,13 +9,13 @@ rules never deepens the recursion.
 
 from __future__ import annotations
 
-from functools import reduce
-
 import numpy as np
 
+from .. import _frame
 from .._text import did_you_mean
-from ..errors import EvaluationError, LogSchemaError
+from ..errors import EvaluationError, LogSchemaError, RuleCheckError
 from . import kernels
+from ._format import error
 from .ast import (
     Apply,
     Binary,
@@ -34,18 +34,30 @@ from .check import CheckedSet
 from .functions import FUNCTIONS
 from .operators import FALSE, INFIX, PREFIX, TRUE, UNKNOWN
 
-__all__ = ["Program", "Evaluator"]
+__all__ = ["Program", "Evaluator", "Plan", "MAX_WORK"]
+
+# Default budget of one evaluation: distinct computed sub-expressions x events.  One pass over
+# the events costs about a nanosecond per event, so 10**10 is some tens of seconds of work at
+# most: a rule set beyond it is refused at bind time instead of hanging for minutes.
+MAX_WORK = 10**10
 
 _FILL = {"number": np.nan, "bool": UNKNOWN, "category": -1}
 _LOG_BOOL = np.array([UNKNOWN, FALSE, TRUE], dtype=np.uint8)  # log bools are -1/0/1
 
 
 class Evaluator:
-    """Evaluates checked nodes over one log, memoising each node's result by its structure."""
+    """Evaluates checked nodes over one log, memoising each node's result by its structure.
 
-    def __init__(self, log, program: Program, norms: dict | None):
+    With a :class:`Plan`, every node's array is released as soon as the last node that
+    reads it has been computed, so memory holds the widest set of live arrays, not one
+    array per node of the program.
+    """
+
+    def __init__(self, log, program: Program, norms: dict | None, plan: Plan | None = None):
         self.log, self.n, self.program, self.norms = log, len(log), program, norms
         self.memo: dict[Node, np.ndarray] = {}
+        self._uses = dict(plan.uses) if plan is not None else None
+        self._early: dict[Node, set] = {}
 
     # -- helpers for kernels -------------------------------------------------------------------------
     def type(self, node: Node):
@@ -54,7 +66,24 @@ class Evaluator:
     def value(self, node: Node) -> np.ndarray:
         if node not in self.memo:
             self.memo[node] = _EVALUATE[type(node)](self, node)
+            if self._uses is not None:
+                early = self._early.pop(node, ())
+                for child in _distinct_children(node):
+                    if child not in early:
+                        self.release(child)
         return self.memo[node]
+
+    def consumed(self, parent: Node, child: Node) -> None:
+        """``parent`` has read ``child`` for the last time before finishing (e.g. one operand of a fold)."""
+        if self._uses is not None and child not in self._early.setdefault(parent, set()):
+            self._early[parent].add(child)
+            self.release(child)
+
+    def release(self, node: Node) -> None:
+        left = self._uses.get(node, 0) - 1
+        self._uses[node] = left
+        if left <= 0:
+            self.memo.pop(node, None)
 
     def array(self, node: Node) -> np.ndarray:
         """The node's value over every event (constants broadcast, read-only)."""
@@ -72,14 +101,22 @@ class Evaluator:
     def norm(self, call: Apply) -> dict:
         return self.norms[call]
 
-    def rule(self, name: str) -> np.ndarray:
-        """A rule's firing as definite true/false (uint8), evaluating what it refers to first."""
-        for dep in self.program._closure(name):
-            key = RuleRef(dep)
-            if key not in self.memo:
-                tri = self.array(self.program._checked.rules[dep].tree)
-                self.memo[key] = np.where(tri == TRUE, TRUE, FALSE).astype(np.uint8)
-        return self.memo[RuleRef(name)]
+    def rules(self, names) -> dict[str, np.ndarray]:
+        """Each named rule's firing (bool), evaluating rules in the plan's order (dependencies first)."""
+        fired = {}
+        for name in names:
+            tree = self.program._checked.rules[name].tree
+            hit = self.value(tree) == TRUE
+            fired[name] = hit if hit.ndim else np.full(self.n, bool(hit))
+            if self._uses is None or self._uses.get(RuleRef(name), 0) > 0:
+                self.memo[RuleRef(name)] = np.where(fired[name], TRUE, FALSE).astype(np.uint8)
+            if self._uses is not None:
+                self.release(tree)
+        return fired
+
+
+def _distinct_children(node: Node) -> list:
+    return list(dict.fromkeys(node.children()))
 
 
 # -- node evaluation -------------------------------------------------------------------------------------
@@ -100,17 +137,28 @@ def _unary(ev: Evaluator, node: Unary) -> np.ndarray:
 
 
 def _logic(ev: Evaluator, node: Logic) -> np.ndarray:
-    return reduce(INFIX[node.op].kernel, (ev.value(o) for o in node.operands)).astype(np.uint8)
+    kernel, out = INFIX[node.op].kernel, None
+    last = {operand: i for i, operand in enumerate(node.operands)}
+    for i, operand in enumerate(node.operands):  # a fold that lets each operand go once folded in
+        value = ev.value(operand)
+        out = value if out is None else kernel(out, value)
+        if last[operand] == i:
+            ev.consumed(node, operand)
+    return np.asarray(out, dtype=np.uint8)
 
 
 def _tri(holds: np.ndarray, missing: np.ndarray) -> np.ndarray:
-    return np.where(missing, UNKNOWN, np.where(holds, TRUE, FALSE)).astype(np.uint8)
+    holds, missing = np.asarray(holds), np.asarray(missing)
+    out = np.array(np.broadcast_to(holds, np.broadcast_shapes(holds.shape, missing.shape)), dtype=np.uint8)
+    out <<= 1  # bool 1/0 -> TRUE (2) / FALSE (0)
+    np.copyto(out, UNKNOWN, where=missing)
+    return out
 
 
 def _codes(ev: Evaluator, node: Node, field: str) -> np.ndarray:
     """Category codes of ``node`` in ``field``'s code space (-2: a label ``field`` does not have)."""
     if isinstance(node, Str):
-        return np.asarray(ev.program._labels(field)[node.value], dtype=np.int64)
+        return np.asarray(ev.program._codes_of(field, [node.value])[0], dtype=np.int64)
     t = ev.type(node)
     codes = ev.value(node)
     if t.field == field:
@@ -138,8 +186,7 @@ def _member(ev: Evaluator, node: Member) -> np.ndarray:
     t = ev.type(node.operand)
     a = ev.value(node.operand)
     if t.kind == "category":
-        labels = ev.program._labels(t.field)
-        items, missing = [labels[i.value] for i in node.items.items], a < 0
+        items, missing = list(ev.program._codes_of(t.field, [i.value for i in node.items.items])), a < 0
     elif t.kind == "bool":
         items, missing = [TRUE if i.value else FALSE for i in node.items.items], a == UNKNOWN
     else:
@@ -153,13 +200,64 @@ def _apply(ev: Evaluator, node: Apply) -> np.ndarray:
 
 
 def _rule_ref(ev: Evaluator, node: RuleRef) -> np.ndarray:
-    return ev.rule(node.name)
+    raise EvaluationError(f"rule {node.name!r} was used before it was evaluated (internal order error)")
 
 
 _EVALUATE = {Num: _literal, Bool: _literal, Field: _field, Unary: _unary, Logic: _logic, Binary: _binary,
              Member: _member, Apply: _apply, RuleRef: _rule_ref}
 
 
+# -- the plan -------------------------------------------------------------------------------------------
+class Plan:
+    """What one evaluation computes: the rules in dependency order and how many nodes read each node.
+
+    Built once per program and target (linear in the size of the rule trees); ``uses[node]`` counts
+    the distinct nodes (and rules) that read ``node``, so the evaluator frees an array when the count
+    reaches zero.  ``work`` is the number of distinct computed nodes, each one pass over the events.
+    """
+
+    def __init__(self, checked: CheckedSet, names: list, extra: Node | None = None):
+        self.names = names
+        uses: dict[Node, int] = {}
+        seen: set = set()
+        roots = [checked.rules[name].tree for name in names] + ([extra] if extra is not None else [])
+        self.work: dict[str, int] = {}
+        for name, root in zip([*names, ""], roots, strict=False):
+            uses[root] = uses.get(root, 0) + 1
+            new = [root] if root not in seen else []
+            seen.update(new)
+            stack = list(new)
+            while stack:
+                node = stack.pop()
+                for child in _distinct_children(node):
+                    uses[child] = uses.get(child, 0) + 1
+                    if child not in seen:
+                        seen.add(child)
+                        stack.append(child)
+                        new.append(child)
+            self.work[name] = sum(1 for node in new if not isinstance(node, _FREE))
+        self.uses = uses
+
+    def check_budget(self, checked: CheckedSet, n_events: int, budget: int, where: str) -> None:
+        """Refuse, naming the rule, a program whose passes over the events would exceed ``budget``."""
+        total = 0
+        for name, work in self.work.items():
+            total += work * n_events
+            if total > budget:
+                rule = checked.rules[name] if name else checked.probe
+                raise error(RuleCheckError,
+                            f"{where}: evaluating the rules up to this one takes {total:,} array operations "
+                            f"(distinct computed sub-expressions x {n_events:,} events; this rule adds {work:,} "
+                            f"sub-expressions), over the budget max_work={budget:,}. Split the rule set, "
+                            "evaluate fewer students at a time (log.for_students(...)), or raise max_work "
+                            "in RuleSet.bind", rule=rule.name, source=rule.text)
+
+
+_FREE = (Num, Str, Bool, Field)  # literals and log fields cost no pass of their own
+
+
+
+# -- the program -----------------------------------------------------------------------------------------
 # -- the program -----------------------------------------------------------------------------------------
 def _walk(tree: Node):
     stack = [tree]
@@ -184,8 +282,8 @@ class Program:
         Training values a key needs before its own norm replaces the overall one.
     """
 
-    def __init__(self, rules, checked: CheckedSet, log, min_count: int):
-        self.rules, self.min_count, self._checked = rules, min_count, checked
+    def __init__(self, rules, checked: CheckedSet, log, min_count: int, max_work: int = MAX_WORK):
+        self.rules, self.min_count, self.max_work, self._checked = rules, min_count, max_work, checked
         self.report = {rule.name: rule.report for rule in rules}
         parts = [*checked.rules.values(), *([checked.probe] if checked.probe else [])]
         self._types = {node: t for c in parts for node, t in c.types.items()}
@@ -193,7 +291,8 @@ class Program:
         self._kinds, self._categories = self._schema(log)
         self._label_cache: dict = {}
         self._state: dict | None = None
-        self._closures: dict = {}
+        self._plans: dict = {}
+        self._plan(probe=checked.probe is not None).check_budget(checked, len(log), max_work, "RuleSet.bind")
 
     def _schema(self, log) -> tuple[dict, dict]:
         used = {"student"}
@@ -212,6 +311,8 @@ class Program:
         return kinds, cats
 
     def _check_log(self, log, where: str) -> None:
+        self._plan(probe=self._checked.probe is not None and where == "RuleSet.values").check_budget(
+            self._checked, len(log), self.max_work, where)
         for name, kind in self._kinds.items():
             if not log.has(name) or log.kind(name) != kind:
                 found = f"a {log.kind(name)} field" if log.has(name) else "missing"
@@ -223,30 +324,36 @@ class Program:
                                      "rules were compiled against; evaluate that log or its sub-logs "
                                      "(log.for_students(...)), which share its categories")
 
-    def _labels(self, field: str) -> dict:
+    def _codes_of(self, field: str, labels: list) -> np.ndarray:
+        """Codes of text labels in ``field`` (-2 where the field has no such label)."""
         if field not in self._label_cache:
-            self._label_cache[field] = {str(lbl): code for code, lbl in enumerate(self._categories[field])}
-        return self._label_cache[field]
+            self._label_cache[field] = _frame.text_labels(self._categories[field])
+        codes = _frame.text_codes(self._label_cache[field], [str(lbl) for lbl in labels])
+        return np.where(codes >= 0, codes, -2)
 
     def _translation(self, source: str, target: str) -> np.ndarray:
         key = (source, target)
         if key not in self._label_cache:
-            labels = self._labels(target)
-            codes = [labels.get(str(lbl), -2) for lbl in self._categories[source]]
-            self._label_cache[key] = np.array([*codes, -1], dtype=np.int64)
+            codes = self._codes_of(target, list(self._categories[source]))
+            self._label_cache[key] = np.append(codes, -1).astype(np.int64)
         return self._label_cache[key]
 
-    def _closure(self, name: str) -> list:
-        """``name`` and every rule it refers to, dependencies first."""
-        if name not in self._closures:
-            seen, stack = set(), [name]
-            while stack:
-                dep = stack.pop()
-                if dep not in seen:
-                    seen.add(dep)
-                    stack.extend(self._checked.rules[dep].refs)
-            self._closures[name] = [r for r in self._checked.order if r in seen]
-        return self._closures[name]
+    def _plan(self, probe: bool = False) -> Plan:
+        """The evaluation plan of every rule (or of the probe and the rules it needs), made once."""
+        if probe not in self._plans:
+            checked = self._checked
+            if probe:
+                needed, stack = set(), list(checked.probe.refs)
+                while stack:  # one closure over the references: linear in rules
+                    dep = stack.pop()
+                    if dep not in needed:
+                        needed.add(dep)
+                        stack.extend(checked.rules[dep].refs)
+                names = [r for r in checked.order if r in needed]
+                self._plans[probe] = Plan(checked, names, checked.probe.tree)
+            else:
+                self._plans[probe] = Plan(checked, list(checked.order))
+        return self._plans[probe]
 
     # -- public API ----------------------------------------------------------------------------------
     @property
@@ -277,16 +384,16 @@ class Program:
             calls = ", ".join(show(c) for c in self._norm_calls[:3])
             raise EvaluationError(f"Program.evaluate: the rules use fitted norms ({calls}); call "
                                   "program.fit(train_log) first")
-        ev = Evaluator(log, self, self._state)
-        return {rule.name: ev.rule(rule.name) == TRUE for rule in self.rules}
+        fired = Evaluator(log, self, self._state, self._plan()).rules(self._plan().names)
+        return {rule.name: fired[rule.name] for rule in self.rules}
 
     def probe_values(self, log) -> tuple[np.ndarray, str]:
         """(values over ``log``'s events, kind) of the expression compiled by :meth:`RuleSet.values`."""
         probe = self._checked.probe
         self._check_log(log, "RuleSet.values")
-        ev = Evaluator(log, self, self._state)
-        for name in probe.refs:
-            ev.rule(name)
+        plan = self._plan(probe=True)
+        ev = Evaluator(log, self, self._state, plan)
+        ev.rules(plan.names)
         return np.array(ev.array(probe.tree)), self._types[probe.tree].kind
 
     def __repr__(self) -> str:

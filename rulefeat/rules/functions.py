@@ -27,7 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import kernels, norms
-from .ast import BOOL, NUMBER, Apply, Field
+from .ast import BOOL, NUMBER, Apply
 from .operators import FALSE, TRUE, UNKNOWN
 
 __all__ = ["Param", "Function", "FUNCTIONS", "REQUIRED", "SCOPES"]
@@ -84,10 +84,6 @@ class Function:
 
 
 # -- kernels -------------------------------------------------------------------------------------------
-def _holds(ev, node) -> np.ndarray:
-    return ev.array(node) == TRUE
-
-
 def _prev(ev, call: Apply) -> np.ndarray:
     return _shift(ev, call, call.arg("n"))
 
@@ -102,15 +98,14 @@ def _shift(ev, call: Apply, n: int) -> np.ndarray:
 
 
 def _count_before(ev, call: Apply) -> np.ndarray:
-    return kernels.count_before(_holds(ev, call.arg("cond")), ev.groups(call.arg("within")))
+    return kernels.count_before(ev.array(call.arg("cond")), ev.groups(call.arg("within")))
 
 
 def _count_recent(ev, call: Apply) -> np.ndarray:
-    holds, g = _holds(ev, call.arg("cond")), ev.groups(call.arg("within"))
+    tri, g = ev.array(call.arg("cond")), ev.groups(call.arg("within"))
     if call.arg("actions") is not None:
-        return kernels.count_recent_actions(holds, g, call.arg("actions"))
-    starts = kernels.window_starts(ev.log, call.arg("within"), call.arg("seconds"))
-    return kernels.count_recent_seconds(holds, g, starts)
+        return kernels.count_recent_actions(tri, g, call.arg("actions"))
+    return kernels.count_recent_seconds(tri, g, ev.log.values("time"), call.arg("seconds"))
 
 
 def _one_window(bound: dict) -> str | None:
@@ -121,12 +116,12 @@ def _one_window(bound: dict) -> str | None:
 
 
 def _streak(ev, call: Apply) -> np.ndarray:
-    return kernels.streak(_holds(ev, call.arg("cond")), ev.groups(call.arg("within")))
+    return kernels.streak(ev.array(call.arg("cond")), ev.groups(call.arg("within")))
 
 
 def _first(ev, call: Apply) -> np.ndarray:
     cond = call.arg("cond")
-    return kernels.first(None if cond is None else _holds(ev, cond), ev.groups(call.arg("within")))
+    return kernels.first(None if cond is None else ev.array(cond), ev.groups(call.arg("within")))
 
 
 def _norm_inputs(ev, call: Apply) -> dict:
@@ -136,12 +131,7 @@ def _norm_inputs(ev, call: Apply) -> dict:
 
 
 def _fit_typical(ev, call: Apply, min_count: int) -> dict:
-    inputs = _norm_inputs(ev, call)
-    field = call.arg("field")
-    # One value sort per field of the training log, shared by every typical() of that field.
-    order = ev.log.cached(("rulefeat.rules", "value-order", field.name),
-                          lambda: np.argsort(inputs["values"])) if isinstance(field, Field) else None
-    return norms.fit_typical(**inputs, q=call.arg("q"), min_count=min_count, value_order=order)
+    return norms.fit_typical(**_norm_inputs(ev, call), q=call.arg("q"), min_count=min_count)
 
 
 def _fit_zscore(ev, call: Apply, min_count: int) -> dict:

@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import scan
+
 __all__ = ["grouped_quantile", "fit_typical", "fit_zscore", "apply_typical", "apply_zscore"]
 
 
@@ -22,33 +24,28 @@ def _lerp(a: np.ndarray, b: np.ndarray, t: np.ndarray) -> np.ndarray:
 
 
 def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float,
-                     by_value: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """(count, q-quantile) of ``values`` for every key ``0..n_keys-1``; NaN where a key has no values.
+                     among: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """(count, q-quantile) of the non-NaN ``values`` for every key ``0..n_keys-1`` and, last, overall.
 
-    Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7).
-    ``by_value`` may give ``argsort(values)`` when the caller already has it.
+    Same definition as ``numpy.quantile(..., method='linear')`` (Hyndman & Fan type 7), with
+    numpy's own interpolation so results agree to the bit.  Keys < 0 count only overall;
+    ``among`` (bool) keeps only those events.  The two order statistics each key needs are
+    found by selection inside the key's bucket (:func:`rulefeat.rules.scan.quantile_order_statistics`),
+    not by sorting the field.  NaN where a key has no values.
     """
-    # Sort by value, then stably by key: lexsort's order (ties in value are interchangeable here)
-    # at a fraction of its cost; small key ranges use numpy's radix sort on int16.
-    if by_value is None:
-        by_value = np.argsort(values)
-    small = np.int16 if n_keys < np.iinfo(np.int16).max else np.int64
-    order = by_value[np.argsort(keys[by_value].astype(small), kind="stable")]
-    v, k = values[order], keys[order]
-    count = np.bincount(k, minlength=n_keys)[:n_keys].astype(np.int64)
-    first = np.cumsum(count) - count
-    has = count > 0
-    virtual = (count[has] - 1) * q
-    lo = np.floor(virtual).astype(np.int64)
-    hi = np.minimum(lo + 1, count[has] - 1)
-    at_top = virtual >= count[has] - 1
-    lo = np.where(at_top, count[has] - 1, lo)
-    out = np.full(n_keys, np.nan)
-    if has.any():
-        start = first[has]
-        out[has] = _lerp(v[start + lo], v[start + hi], virtual - np.floor(virtual))
-        out[has] = np.where(at_top, v[start + count[has] - 1], out[has])
-    return count, out
+    use = among is not None
+    count, low, high = scan.quantile_order_statistics(
+        np.ascontiguousarray(values, dtype=np.float64), np.ascontiguousarray(keys),
+        np.ascontiguousarray(among) if use else np.zeros(1, dtype=bool), use, n_keys, float(q))
+    virtual = np.maximum(count - 1, 0) * q
+    top = np.maximum(count - 1, 0)
+    with np.errstate(invalid="ignore"):  # infinite values: inf - inf, as in numpy's own interpolation
+        lerp = _lerp(low, high, virtual - np.floor(virtual))
+    # A key at its top rank takes its largest value; the overall value is numpy.quantile's own
+    # arithmetic throughout (which differs only for infinite values).
+    out = np.where(virtual >= top, low, lerp)
+    out[n_keys] = lerp[n_keys]
+    return count, np.where(count > 0, out, np.nan)
 
 
 def _grouped_moments(values: np.ndarray, keys: np.ndarray, n_keys: int):
@@ -73,23 +70,12 @@ def _training(values: np.ndarray, keys: np.ndarray, among: np.ndarray | None):
 
 
 def fit_typical(values: np.ndarray, keys: np.ndarray, n_keys: int, *, q: float, min_count: int,
-                among: np.ndarray | None = None, value_order: np.ndarray | None = None) -> dict:
-    """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values.
-
-    ``value_order`` (``argsort(values)``, NaN last) lets several norms of one field share one sort.
-    """
-    every, v, k = _training(values, keys, among)
-    overall = float(np.quantile(every, q)) if len(every) else float("nan")
-    by_value = None
-    if value_order is not None:
-        keyed = ~np.isnan(values) & (keys >= 0)
-        if among is not None:
-            keyed &= among
-        position = np.cumsum(keyed) - 1  # index of each kept event inside v / k
-        by_value = position[value_order[keyed[value_order]]]
-    count, per_key = grouped_quantile(v, k, n_keys, q, by_value=by_value)
-    value = np.where(count >= min_count, per_key, overall)
-    return {"count": count, "value": value, "overall": overall}
+                among: np.ndarray | None = None) -> dict:
+    """The q-quantile of ``values`` per key, with the overall quantile where a key has < ``min_count`` values."""
+    count, quantile = grouped_quantile(values, keys, n_keys, q, among)
+    overall = float(quantile[n_keys])
+    value = np.where(count[:n_keys] >= min_count, quantile[:n_keys], overall)
+    return {"count": count[:n_keys], "value": value, "overall": overall}
 
 
 def fit_zscore(values: np.ndarray, keys: np.ndarray, n_keys: int, *, min_count: int,

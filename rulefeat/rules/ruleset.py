@@ -16,7 +16,7 @@ from .. import _frame
 from .._text import did_you_mean
 from ..errors import ParameterError, RuleCheckError, RuleSyntaxError
 from .check import check_all
-from .compile import Program
+from .compile import MAX_WORK, Program
 from .functions import FUNCTIONS
 from .parse import parse
 from .tokenize import KEYWORDS
@@ -173,17 +173,22 @@ class RuleSet:
         return tuple(rule.name for rule in self._rules)
 
     # -- compilation -------------------------------------------------------------------------------
-    def bind(self, log, *, min_count: int = 5) -> Program:
+    def bind(self, log, *, min_count: int = 5, max_work: int = MAX_WORK) -> Program:
         """Check the rules against ``log``'s schema and compile them into a :class:`Program`.
 
         ``min_count`` is how many training values a key (e.g. a step) needs before
         ``typical``/``zscore`` use its own statistic rather than the overall one.
+        ``max_work`` caps one evaluation at that many array operations (distinct computed
+        sub-expressions x events, default 10**10, some tens of seconds); a rule set beyond
+        it is refused with a :class:`RuleCheckError` naming the rule that crosses it, here
+        and whenever the program later evaluates a larger log.
         """
-        if isinstance(min_count, bool) or not isinstance(min_count, int) or min_count < 1:
-            raise ParameterError(f"The 'min_count' parameter of RuleSet.bind must be a positive integer. "
-                                 f"Got {min_count!r} instead.")
+        for name, value in (("min_count", min_count), ("max_work", max_work)):
+            if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+                raise ParameterError(f"The {name!r} parameter of RuleSet.bind must be a positive integer. "
+                                     f"Got {value!r} instead.")
         entries = [(rule.name, rule.when, self._trees[rule.name]) for rule in self._rules]
-        return Program(self, check_all(entries, log), log, min_count)
+        return Program(self, check_all(entries, log), log, min_count, max_work)
 
     def evaluate(self, log, *, min_count: int = 5):
         """Every rule's firing on every event of ``log``, as a DataFrame indexed by input row number.
