@@ -13,6 +13,7 @@ from functools import reduce
 
 import numpy as np
 
+from .. import _frame
 from .._text import did_you_mean
 from ..errors import EvaluationError, LogSchemaError
 from . import kernels
@@ -46,6 +47,7 @@ class Evaluator:
     def __init__(self, log, program: Program, norms: dict | None):
         self.log, self.n, self.program, self.norms = log, len(log), program, norms
         self.memo: dict[Node, np.ndarray] = {}
+        self._label_cache: dict = {}
 
     # -- helpers for kernels -------------------------------------------------------------------------
     def type(self, node: Node):
@@ -67,10 +69,43 @@ class Evaluator:
         return kernels.groups_for(self.log, scope)
 
     def n_keys(self, field: str) -> int:
-        return len(self.program._categories[field])
+        return len(self.log.categories(field))
+
+    def labels(self, field: str) -> dict:
+        """This log's labels of a category field as text -> code (labels are matched as text)."""
+        if field not in self._label_cache:
+            cats = self.log.categories(field)
+            self._label_cache[field] = {str(lbl): code for code, lbl in enumerate(cats)}
+        return self._label_cache[field]
+
+    def translation(self, source: str, target: str) -> np.ndarray:
+        """Codes of ``source`` labels in ``target``'s code space (-2: no such label); ends with -1 for missing."""
+        key = (source, target)
+        if key not in self._label_cache:
+            labels = self.labels(target)
+            codes = [labels.get(str(lbl), -2) for lbl in self.log.categories(source)]
+            self._label_cache[key] = np.array([*codes, -1], dtype=np.int64)
+        return self._label_cache[key]
 
     def norm(self, call: Apply) -> dict:
         return self.norms[call]
+
+    def norm_keys(self, call: Apply) -> np.ndarray:
+        """Codes of the norm's ``per`` field in the code space of the log it was fitted on (-1: unseen key).
+
+        A norm is stored per code of the training log; another log numbers its labels its own way,
+        so its codes are translated by label (a key the training log lacks falls back to the overall norm).
+        """
+        per = call.arg("per")
+        key = ("norm-keys", per, id(self.program._norm_labels[call]))
+        if key not in self._label_cache:
+            codes, current = self.log.values(per), self.log.categories(per)
+            fitted = self.program._norm_labels[call]
+            if current is not fitted and not current.equals(fitted):
+                into = _frame.codes_for(current, fitted)
+                codes = np.where(codes >= 0, into[np.maximum(codes, 0)], -1) if len(into) else codes
+            self._label_cache[key] = codes
+        return self._label_cache[key]
 
     def rule(self, name: str) -> np.ndarray:
         """A rule's firing as definite true/false (uint8), evaluating what it refers to first."""
@@ -110,12 +145,13 @@ def _tri(holds: np.ndarray, missing: np.ndarray) -> np.ndarray:
 def _codes(ev: Evaluator, node: Node, field: str) -> np.ndarray:
     """Category codes of ``node`` in ``field``'s code space (-2: a label ``field`` does not have)."""
     if isinstance(node, Str):
-        return np.asarray(ev.program._labels(field)[node.value], dtype=np.int64)
+        # A label this log does not have (a step never seen in it) matches no event.
+        return np.asarray(ev.labels(field).get(node.value, -2), dtype=np.int64)
     t = ev.type(node)
     codes = ev.value(node)
     if t.field == field:
         return codes
-    translate = ev.program._translation(t.field, field)  # ends with -1, the slot for missing codes
+    translate = ev.translation(t.field, field)  # ends with -1, the slot for missing codes
     return translate[np.where(codes >= 0, codes, len(translate) - 1)]
 
 
@@ -138,8 +174,8 @@ def _member(ev: Evaluator, node: Member) -> np.ndarray:
     t = ev.type(node.operand)
     a = ev.value(node.operand)
     if t.kind == "category":
-        labels = ev.program._labels(t.field)
-        items, missing = [labels[i.value] for i in node.items.items], a < 0
+        labels = ev.labels(t.field)
+        items, missing = [labels.get(i.value, -2) for i in node.items.items], a < 0
     elif t.kind == "bool":
         items, missing = [TRUE if i.value else FALSE for i in node.items.items], a == UNKNOWN
     else:
@@ -190,12 +226,12 @@ class Program:
         parts = [*checked.rules.values(), *([checked.probe] if checked.probe else [])]
         self._types = {node: t for c in parts for node, t in c.types.items()}
         self._norm_calls = list(dict.fromkeys(call for c in parts for call in c.norms))
-        self._kinds, self._categories = self._schema(log)
-        self._label_cache: dict = {}
+        self._kinds = self._schema(log)
         self._state: dict | None = None
+        self._norm_labels: dict = {}
         self._closures: dict = {}
 
-    def _schema(self, log) -> tuple[dict, dict]:
+    def _schema(self, log) -> dict:
         used = {"student"}
         probe = [self._checked.probe] if self._checked.probe else []
         for c in (*self._checked.rules.values(), *probe):
@@ -207,9 +243,14 @@ class Program:
                     used.update(v for k, v in params.items() if k in ("within", "per"))
                     if params.get("seconds") is not None:
                         used.add("time")
-        kinds = {name: log.kind(name) for name in sorted(used)}
-        cats = {name: log.categories(name) for name, kind in kinds.items() if kind == "category"}
-        return kinds, cats
+        # Kinds only: category labels are read from each log evaluated, so the program holds no
+        # student ids and scores any log with these fields (DESIGN.md contract 8).
+        return {name: log.kind(name) for name in sorted(used)}
+
+    @property
+    def schema(self) -> dict:
+        """``{field: kind}`` of every field the rules read; a log to evaluate needs each of them."""
+        return dict(self._kinds)
 
     def _check_log(self, log, where: str) -> None:
         for name, kind in self._kinds.items():
@@ -217,24 +258,6 @@ class Program:
                 found = f"a {log.kind(name)} field" if log.has(name) else "missing"
                 raise LogSchemaError(f"{where}: the rules were compiled against a log whose {name!r} is a {kind} "
                                      f"field, but in this log it is {found}.{did_you_mean(name, log.fields)}")
-            cats = self._categories.get(name)
-            if cats is not None and log.categories(name) is not cats and not log.categories(name).equals(cats):
-                raise LogSchemaError(f"{where}: the categories of field {name!r} differ from those of the log the "
-                                     "rules were compiled against; evaluate that log or its sub-logs "
-                                     "(log.for_students(...)), which share its categories")
-
-    def _labels(self, field: str) -> dict:
-        if field not in self._label_cache:
-            self._label_cache[field] = {str(lbl): code for code, lbl in enumerate(self._categories[field])}
-        return self._label_cache[field]
-
-    def _translation(self, source: str, target: str) -> np.ndarray:
-        key = (source, target)
-        if key not in self._label_cache:
-            labels = self._labels(target)
-            codes = [labels.get(str(lbl), -2) for lbl in self._categories[source]]
-            self._label_cache[key] = np.array([*codes, -1], dtype=np.int64)
-        return self._label_cache[key]
 
     def _closure(self, name: str) -> list:
         """``name`` and every rule it refers to, dependencies first."""
@@ -268,6 +291,8 @@ class Program:
         self._check_log(log, "Program.fit")
         ev = Evaluator(log, self, norms=None)
         self._state = {call: FUNCTIONS[call.func].fit(ev, call, self.min_count) for call in self._norm_calls}
+        # The labels the state's codes stand for (steps, skills, ...; never students: see check.py).
+        self._norm_labels = {call: log.categories(call.arg("per")) for call in self._norm_calls}
         return self
 
     def evaluate(self, log) -> dict[str, np.ndarray]:
