@@ -1,6 +1,7 @@
 """rulefeat: expert rules as scikit-learn features over tutoring logs, with student-grouped evaluation."""
 
 from .errors import (
+    DetectorFileError,
     EvaluationError,
     LogRepairWarning,
     LogSchemaError,
@@ -16,6 +17,7 @@ from .log import EventLog, LogIssue, read_events
 from .log_features import LogFeatures
 from .rule_features import RuleFeatures
 from .rules import Rule, RuleSet
+from .ship import SavedDetector, bind, load_detector, read_manifest, save_detector
 
 __version__ = "0.1.0"
 
@@ -30,6 +32,11 @@ __all__ = [
     "incremental_value",
     "make_detector",
     "diagnose",
+    "bind",
+    "save_detector",
+    "load_detector",
+    "read_manifest",
+    "SavedDetector",
     "RulefeatError",
     "LogSchemaError",
     "UnitError",
@@ -37,6 +44,7 @@ __all__ = [
     "RuleCheckError",
     "EvaluationError",
     "ParameterError",
+    "DetectorFileError",
     "RulefeatWarning",
     "LogRepairWarning",
 ]

@@ -57,32 +57,25 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
         }
 
     # -- the log is a run-time input ------------------------------------------------------------
-    def bind(self, log: EventLog):
-        """A copy of this transformer (fitted state included) that reads ``log``.
-
-        The fitted state never depends on the log it is bound to: units of ``log`` get the same
-        features as they would in any other log holding the same students' events.  A fitted
-        transformer checks that ``log`` has every field it reads, with the same kind, and raises
-        :class:`~rulefeat.errors.LogSchemaError` listing every difference.
+    def bind(self, log: EventLog, *, empty_units: str = "error"):
+        """A copy of this transformer (fitted state included) that reads ``log``; see :func:`rulefeat.bind`.
 
         Parameters
         ----------
         log : EventLog
-            The events to score.
+            The events to score; it needs every field the fitted state reads, with the same kind.
+        empty_units : {"error", "empty"}, default "error"
+            Units finding no events in ``log`` raise a ``UnitError`` naming them, or (``"empty"``)
+            are scored as empty units with a warning.
 
         Returns
         -------
         UnitTransformer
             A new transformer; this one is left unchanged.
         """
-        if not is_log(log):
-            raise ParameterError(f"{self._where('bind')}: log must be a rulefeat.EventLog. Got "
-                                 f"{type(log).__name__} instead.")
-        if hasattr(self, "log_schema_"):
-            self._check_schema(log, self._where("bind"))
-        new = copy.deepcopy(self)
-        new.log = log
-        return new
+        from .ship.bind import bind
+
+        return bind(self, log, empty_units=empty_units)
 
     def _check_schema(self, log: EventLog, where: str) -> None:
         """Refuse a log lacking a field the fitted state reads, or holding it as another kind."""
@@ -136,6 +129,9 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
         self.n_features_in_ = X.shape[1]
         self.feature_names_in_ = np.asarray([str(c) for c in X.columns], dtype=object)
         self.unit_ = unit
+        # What the log looked like, for the saved manifest (no student data: kinds and action labels only).
+        self.time_kind_ = self.log.time_kind
+        self.action_labels_ = [str(a) for a in self.log.categories("action")]
         return unit
 
     def _check_table(self, X, unit: Unit, method: str) -> None:
