@@ -45,6 +45,13 @@ def is_unit(value) -> bool:
     return isinstance(value, Unit) or value in UNIT_NAMES
 
 
+def raise_schema_differences(differ: list[str], where: str) -> None:
+    if differ:
+        raise LogSchemaError(f"{where}: the log does not have the schema the detector was fitted on: "
+                             + "; ".join(dict.fromkeys(differ)) + ". Build the log with the same columns (and "
+                             "column mapping) as the training log.")
+
+
 class UnitTransformer(TransformerMixin, BaseEstimator):
     """Base of :class:`RuleFeatures` and :class:`LogFeatures`; not used directly."""
 
@@ -79,16 +86,16 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
 
     def _check_schema(self, log: EventLog, where: str) -> None:
         """Refuse a log lacking a field the fitted state reads, or holding it as another kind."""
+        raise_schema_differences(self._schema_differences(log), where)
+
+    def _schema_differences(self, log: EventLog) -> list[str]:
         differ = []
         for name, kind in self.log_schema_.items():
             if not log.has(name):
                 differ.append(f"{name!r} ({kind}) is missing")
             elif log.kind(name) != kind:
                 differ.append(f"{name!r} is a {log.kind(name)} field, expected {kind}")
-        if differ:
-            raise LogSchemaError(f"{where}: the log does not have the schema this transformer was fitted on: "
-                                 + "; ".join(differ) + ". Build the log with the same columns (and column "
-                                 "mapping) as the training log.")
+        return differ
 
     def _require_log(self, method: str) -> None:
         if self.log is None:

@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 from sklearn.base import BaseEstimator
 
-from .._base import UnitTransformer
+from .._base import UnitTransformer, raise_schema_differences
 from ..errors import ParameterError
 from ..log import EventLog
 
@@ -108,9 +108,8 @@ def bind(detector, log: EventLog, *, empty_units: str = "error"):
     if not inside:
         raise ParameterError(f"rulefeat.bind: {type(detector).__name__} holds no rulefeat transformer "
                              "(RuleFeatures or LogFeatures), so there is nothing to bind to a log.")
-    for transformer in inside:
-        if hasattr(transformer, "log_schema_"):
-            transformer._check_schema(log, "rulefeat.bind")
+    differ = [d for tf in inside if hasattr(tf, "log_schema_") for d in tf._schema_differences(log)]
+    raise_schema_differences(differ, "rulefeat.bind")
     bound = copy.deepcopy(detector)  # transformers share their old log instead of copying it (contract 1)
     for transformer in unit_transformers(bound):
         transformer.log = log
