@@ -165,3 +165,23 @@ def test_evaluation_report_headline_goes_into_the_manifest(shipped, tmp_path):
     assert headline["effect"] == report.effect() and headline["primary_metric"] == "auc"
     assert [row["variant"] for row in headline["summary"]] == ["mined", "rules", "combined"]
     assert headline["rules_hash"] == rulefeat.read_manifest(path)["rules"][0]["sha256"]
+
+
+class _Remembers:
+    """A final step that stores the training students' ids (what the saving guard must catch)."""
+
+    def __init__(self, ids):
+        self.ids = list(ids)
+        self.classes_ = np.array([0, 1])
+
+    def predict_proba(self, Z):
+        return np.tile([0.5, 0.5], (len(Z), 1))
+
+
+def test_saving_warns_when_a_step_stores_student_ids(shipped, tmp_path):
+    from sklearn.pipeline import Pipeline
+
+    detector = shipped["detector"]
+    leaky = Pipeline([detector.steps[0], ("model", _Remembers(shipped["log"].students))])
+    with pytest.warns(RulefeatWarning, match=r"contains text equal to 40 student id\(s\) of the log it was bound to"):
+        rulefeat.save_detector(leaky, tmp_path / "leaky.zip")
