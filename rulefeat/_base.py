@@ -90,7 +90,7 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
 
     def _schema_differences(self, log: EventLog) -> list[str]:
         differ = []
-        for name, kind in self.log_schema_.items():
+        for name, kind in getattr(self, "log_schema_", {}).items():
             if not log.has(name):
                 differ.append(f"{name!r} ({kind}) is missing")
             elif log.kind(name) != kind:

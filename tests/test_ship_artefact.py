@@ -185,3 +185,15 @@ def test_saving_warns_when_a_step_stores_student_ids(shipped, tmp_path):
     leaky = Pipeline([detector.steps[0], ("model", _Remembers(shipped["log"].students))])
     with pytest.warns(RulefeatWarning, match=r"contains text equal to 40 student id\(s\) of the log it was bound to"):
         rulefeat.save_detector(leaky, tmp_path / "leaky.zip")
+
+
+def test_a_saved_transformer_gives_features_not_scores(shipped, tmp_path):
+    rf = shipped["detector"].named_steps["features"].transformer_list[1][1]
+    path = rulefeat.save_detector(rf, tmp_path / "rules_only.zip")
+    loaded = rulefeat.load_detector(path)
+    assert loaded.manifest["detector"]["task"] is None
+    X = shipped["new_windows"][KEYS]
+    with pytest.raises(ParameterError, match="has no model to predict with"):
+        loaded.score(shipped["new_log"], X)
+    expected = rulefeat.bind(rf, shipped["new_log"]).transform(X)
+    assert loaded.bind(shipped["new_log"]).transform(X).equals(expected)

@@ -354,8 +354,12 @@ class SavedDetector:
 
     def score(self, log: EventLog, X, *, empty_units: str = "error"):
         """Scores of the units ``X`` of ``log``: P(class 1) for a classifier, predictions for a regressor."""
+        task = self.manifest["detector"]["task"]
+        if task is None:
+            raise ParameterError("SavedDetector.score: the saved estimator has no model to predict with (it is a "
+                                 "transformer); use .bind(log).transform(X) for its features.")
         bound = self.bind(log, empty_units=empty_units)
-        if self.manifest["detector"]["task"] == "classification":
+        if task == "classification":
             classes = list(self.manifest["detector"]["classes"])
             column = classes.index(1) if 1 in classes else len(classes) - 1
             return bound.predict_proba(X)[:, column]
