@@ -2,6 +2,7 @@
 
 from ._version import __version__
 from .errors import (
+    DetectorFileError,
     EvaluationError,
     LogRepairWarning,
     LogSchemaError,
@@ -25,6 +26,7 @@ from .log import EventLog, LogIssue, read_events
 from .mined.transformer import LogFeatures
 from .rules import Rule, RuleSet
 from .rules.transformer import RuleFeatures
+from .ship import SavedDetector, bind, load_detector, read_manifest, save_detector
 
 __all__ = [
     "__version__",
@@ -40,6 +42,11 @@ __all__ = [
     "diagnose",
     "IncrementalValueReport",
     "RuleDiagnostics",
+    "bind",
+    "save_detector",
+    "load_detector",
+    "read_manifest",
+    "SavedDetector",
     "RulefeatError",
     "LogSchemaError",
     "UnitError",
@@ -48,6 +55,7 @@ __all__ = [
     "EvaluationError",
     "ParameterError",
     "SimulationError",
+    "DetectorFileError",
     "RulefeatWarning",
     "LogRepairWarning",
     "GuardWarning",

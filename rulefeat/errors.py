@@ -17,6 +17,7 @@ __all__ = [
     "EvaluationError",
     "SimulationError",
     "ParameterError",
+    "DetectorFileError",
     "RulefeatWarning",
     "LogRepairWarning",
 ]
@@ -60,3 +61,7 @@ class RulefeatWarning(UserWarning):
 
 class LogRepairWarning(RulefeatWarning):
     """The event log repaired or flagged rows of its input; see ``EventLog.issues``."""
+
+
+class DetectorFileError(RulefeatError, ValueError):
+    """A saved detector file cannot be read: not a detector file, a newer format, or its content hash differs."""

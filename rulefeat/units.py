@@ -79,8 +79,12 @@ class Unit:
         return (self.student,)
 
     def resolve(self, log: EventLog, X: pd.DataFrame, *, missing_students: str = "error",
-                where: str = "resolve") -> UnitIndex:
-        """Map the rows of ``X`` to the events they cover."""
+                empty_units: str = "empty", where: str = "resolve") -> UnitIndex:
+        """Map the rows of ``X`` to the events they cover.
+
+        Units covering no events are kept with a warning (``empty_units="empty"``) or refused with a
+        :class:`~rulefeat.errors.UnitError` naming them (``empty_units="error"``).
+        """
         _check_table(X, self.keys(), where, self.name)
         if missing_students not in MISSING_POLICIES:
             raise UnitError(f"The 'missing_students' parameter of {where} must be one of "
@@ -88,6 +92,11 @@ class Unit:
         students = log.student_codes(X[self.student], missing=missing_students, where=where)
         starts, ends, order = self._ranges(log, X, students, where)
         index = _make_index(log, starts, ends, order, students, self._start_times(log, X))
+        if empty_units not in MISSING_POLICIES:
+            raise UnitError(f"The 'empty_units' parameter of {where} must be one of "
+                            f"{list(MISSING_POLICIES)!r}. Got {empty_units!r} instead.")
+        if empty_units == "error":
+            _refuse_empty(index, X, self.keys(), where, self.name)
         _report_empty(index, where, self.name)
         return index
 
@@ -294,6 +303,18 @@ def _make_index(log, starts, ends, order, students, start_time) -> UnitIndex:
         start_time[nonempty] = time[events[indptr[:-1][nonempty]]]
     return UnitIndex(indptr=indptr, events=events, start_time=np.asarray(start_time, dtype=np.float64),
                      students=np.asarray(students, dtype=np.int64))
+
+
+def _refuse_empty(index: UnitIndex, X: pd.DataFrame, keys, where: str, name: str) -> None:
+    empty = np.flatnonzero(index.empty)
+    if not len(empty):
+        return
+    shown = "; ".join(f"row {r}: " + ", ".join(f"{k}={X[k].iloc[r]!r}" for k in keys) for r in empty[:3])
+    more = f" (and {len(empty) - 3} more)" if len(empty) > 3 else ""
+    raise UnitError(f"{where}: {len(empty)} of {index.n_units} {name} units cover no events of the log this "
+                    f"transformer reads ({shown}{more}). If these units come from another log, bind the fitted "
+                    "detector to that log first: rulefeat.bind(detector, new_log). To score units without "
+                    "events anyway (count-like features 0, others missing), pass empty_units='empty'.")
 
 
 def _report_empty(index: UnitIndex, where: str, name: str) -> None:

@@ -21,6 +21,7 @@ from threadpoolctl import threadpool_limits
 from tqdm import tqdm
 
 from ..errors import EvaluationError
+from ..ship.bind import log_params
 from .guards import Finding, feature_findings
 from .metrics import kappa_threshold
 from .splits import Fold
@@ -70,12 +71,15 @@ class TransformerSource:
 
     def __init__(self, X: pd.DataFrame, mined, rules, rule_names: list):
         self.X, self.mined, self.rules, self.rule_names = X, mined, rules, list(rule_names)
+        # The logs travel to the workers beside the transformers (a fitted prototype pickles without its log)
+        # and are set again on every clone there: transport, not part of any fitted artefact.
+        self.logs = {"mined": log_params(mined), "rules": log_params(rules)}
 
     def features(self, train: np.ndarray, test: np.ndarray, y_train: np.ndarray) -> FoldFeatures:
         Xtr, Xte = self.X.iloc[train], self.X.iloc[test]
         blocks = []
         for prefix, prototype in (("mined", self.mined), ("rules", self.rules)):
-            est = clone(prototype)
+            est = clone(prototype).set_params(**self.logs[prefix])
             Ztr = est.fit_transform(Xtr, y_train)
             Zte = est.transform(Xte)
             blocks.append((column_names(est, Ztr, prefix), dense(Ztr), dense(Zte)))

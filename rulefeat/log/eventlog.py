@@ -253,7 +253,9 @@ class EventLog:
             shown = ", ".join(f"row {r}: {labels.iloc[r]!r}" for r in rows[:5])
             raise UnitError(
                 f"{where}: {int(absent.sum())} rows name students that are not in the event log ({shown}). "
-                "Check the student ids, or pass missing_students='empty' to give such rows empty units."
+                "Check the student ids; if the rows come from another log, bind the fitted detector to it "
+                "(rulefeat.bind(detector, new_log)); or pass missing_students='empty' to give such rows "
+                "empty units."
             )
         return codes
 

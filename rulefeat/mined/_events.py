@@ -12,7 +12,9 @@ from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
+import pandas as pd
 
+from .. import _frame
 from .._aggregate import Aggregator
 from ..log.derive import ranges_to_index
 from ..log.eventlog import EventLog
@@ -48,6 +50,31 @@ def codes(log: EventLog, name: str) -> np.ndarray:
     if log.has(name) and log.kind(name) == "category":
         return log.values(name)
     return _memo(log, f"no-{name}", lambda: np.full(len(log), -1, dtype=np.int32))
+
+
+def codes_as_fitted(log: EventLog, name: str, fitted: pd.Index | None, *, unseen: str = "missing") -> np.ndarray:
+    """Codes of a category field in the code space of the log a family was fitted on.
+
+    Fitted state is stored per code of the training log (``fitted`` are its labels); another log
+    numbers its labels its own way, so its codes are translated by label (matched as text).  Labels
+    the training log lacks become -1 (``unseen="missing"``) or distinct codes from ``len(fitted)`` on
+    (``unseen="distinct"``), so each still forms its own group.
+    """
+    current = codes(log, name)
+    if fitted is None or not log.has(name) or log.categories(name) is fitted:
+        return current
+    labels = log.categories(name)
+    if labels.equals(fitted):
+        return current
+    into = _frame.codes_for(labels, fitted)
+    if unseen == "distinct":
+        into = np.where(into >= 0, into, len(fitted) + np.arange(len(into)))
+    return np.where(current >= 0, into[np.maximum(current, 0)] if len(into) else -1, -1)
+
+
+def fitted_labels(log: EventLog, name: str) -> pd.Index | None:
+    """The labels of a category field that fitted state will be keyed by (None when the log lacks it)."""
+    return log.categories(name) if log.has(name) and log.kind(name) == "category" else None
 
 
 def action_is(log: EventLog, kind: str) -> np.ndarray:

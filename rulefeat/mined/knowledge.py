@@ -8,7 +8,10 @@ reads P(known) given the student's own earlier attempts only.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
+import pandas as pd
 
 from . import _events as ev
 from ._events import Settings, TrainingEvents, UnitView
@@ -18,7 +21,20 @@ FEATURES = ("p_known_at_start", "p_known_at_end", "p_known_mean", "p_known_chang
             "mastered_attempt_share", "surprise_mean")
 
 
-def fit(train: TrainingEvents, settings: Settings) -> BKT | None:
+@dataclass(frozen=True)
+class MasteryState:
+    """The fitted BKT model and the skill labels its skill codes stand for."""
+
+    model: BKT
+    skills: pd.Index | None
+
+    @property
+    def params_(self):
+        """The model's fitted parameters (:class:`rulefeat.mastery.BKTParams`)."""
+        return self.model.params_
+
+
+def fit(train: TrainingEvents, settings: Settings) -> MasteryState | None:
     """A BKT model of the training attempts; None when the training students made no judged attempt."""
     log = train.log
     judged = train.positions[ev.judged_attempts(log)[train.positions]]
@@ -27,7 +43,7 @@ def fit(train: TrainingEvents, settings: Settings) -> BKT | None:
         return None
     options = {**settings.bkt_options, "random_state": settings.random_state}
     student, skill, correct = _attempt_arrays(log, judged)
-    return BKT(**options).fit(student, skill, correct)
+    return MasteryState(BKT(**options).fit(student, skill, correct), ev.fitted_labels(log, "skill"))
 
 
 def _budget(log, judged: np.ndarray, settings: Settings) -> np.ndarray:
@@ -44,12 +60,13 @@ def _budget(log, judged: np.ndarray, settings: Settings) -> np.ndarray:
     return judged[np.repeat(keep, counts)]
 
 
-def _attempt_arrays(log, positions: np.ndarray):
-    return (log.values("student")[positions], ev.codes(log, "skill")[positions],
-            log.values("correct")[positions])
+def _attempt_arrays(log, positions: np.ndarray, skills=None):
+    # Skills the model never saw get codes past its own, so each keeps its own sequence (pooled parameters).
+    skill = ev.codes_as_fitted(log, "skill", skills, unseen="distinct")
+    return log.values("student")[positions], skill[positions], log.values("correct")[positions]
 
 
-def compute(view: UnitView, model: BKT | None) -> dict[str, np.ndarray]:
+def compute(view: UnitView, model: MasteryState | None) -> dict[str, np.ndarray]:
     if model is None:
         return {name: view.nan() for name in FEATURES}
     log, agg = view.log, view.agg
@@ -70,12 +87,12 @@ def compute(view: UnitView, model: BKT | None) -> dict[str, np.ndarray]:
     }
 
 
-def _trace(view: UnitView, model: BKT):
+def _trace(view: UnitView, model: MasteryState):
     """P(known) before / after and predicted P(correct) per event (NaN off the judged attempts)."""
     log = view.log
     events = view.students_events()
     judged = events[view.judged[events]]
-    trace = model.forward(*_attempt_arrays(log, judged))
+    trace = model.model.forward(*_attempt_arrays(log, judged, model.skills))
     out = []
     for values in trace:
         full = np.full(len(log), np.nan)

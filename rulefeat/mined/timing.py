@@ -8,7 +8,7 @@ a pause.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -35,10 +35,12 @@ class KeyNorm:
 
 @dataclass(frozen=True)
 class TimingState:
-    """Fitted norms ``{(base, key): KeyNorm}`` and pause thresholds ``{quantile: seconds}``."""
+    """Fitted norms ``{(base, key): KeyNorm}``, pause thresholds ``{quantile: seconds}`` and the labels
+    ``{key: Index}`` the norms' codes stand for (another log's codes are translated by label)."""
 
     norms: dict
     pause_seconds: dict
+    labels: dict = field(default_factory=dict)
 
 
 def pause_name(q: float) -> str:
@@ -65,7 +67,8 @@ def fit(train: TrainingEvents, settings: Settings) -> TimingState:
     gap = gap[~np.isnan(gap)]
     pauses = {float(q): float(np.quantile(gap, q)) if len(gap) else np.nan
               for q in settings.pause_quantiles}
-    return TimingState(norms=norms, pause_seconds=pauses)
+    labels = {key: ev.fitted_labels(log, key) for key in NORM_KEYS}
+    return TimingState(norms=norms, pause_seconds=pauses, labels=labels)
 
 
 def _norm(medians, counts, values, min_events: int) -> KeyNorm:
@@ -101,7 +104,7 @@ def compute(view: UnitView, state: TimingState) -> dict[str, np.ndarray]:
     for base, values in raw.items():
         variants = {"": values}
         for key in NORM_KEYS:
-            typical = state.norms[(base, key)].lookup(ev.codes(log, key))
+            typical = state.norms[(base, key)].lookup(ev.codes_as_fitted(log, key, state.labels.get(key)))
             variants[f"_norm_{key}"] = _normalise(base, values, typical)
         for suffix, per_event in variants.items():
             stats = agg.describe(per_event, [how for _, how in STATS])

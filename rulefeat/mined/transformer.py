@@ -81,6 +81,9 @@ class LogFeatures(UnitTransformer):
         a seeded random order (four parameters per skill need far fewer); None uses all.
     missing_students : {"error", "empty"}, default="error"
         What to do with rows of X naming students absent from the log.
+    empty_units : {"empty", "error"}, default="empty"
+        Units covering no events are kept with a warning (count-like features 0, others NaN), or
+        refused with a ``UnitError`` naming them (what :func:`~rulefeat.make_detector` uses).
     random_state : int, numpy.random.Generator or None, default=None
         Seeds the BKT restarts and the choice of students under ``bkt_max_attempts``.
 
@@ -117,7 +120,7 @@ class LogFeatures(UnitTransformer):
     def __init__(self, log=None, *, unit="window", families=None, prune=True, max_features=None,
                  mastery_threshold=0.95, pause_quantiles=(0.9, 0.99), min_norm_events=5,
                  hint_level_field="hint_level", hint_total_field="hint_levels_total", bkt_options=None,
-                 bkt_max_attempts=1_000_000, missing_students="error", random_state=None):
+                 bkt_max_attempts=1_000_000, missing_students="error", empty_units="empty", random_state=None):
         self.log = log
         self.unit = unit
         self.families = families
@@ -131,6 +134,7 @@ class LogFeatures(UnitTransformer):
         self.bkt_options = bkt_options
         self.bkt_max_attempts = bkt_max_attempts
         self.missing_students = missing_students
+        self.empty_units = empty_units
         self.random_state = random_state
 
     # -- parameters -----------------------------------------------------------
@@ -228,6 +232,7 @@ class LogFeatures(UnitTransformer):
             raise UnitError(f"{self._where('fit')}: none of the students in X is in the event log; "
                             "there is nothing to learn from.")
         self.families_ = families
+        self.log_schema_ = {name: self.log.kind(name) for name in self._fields_read() if self.log.has(name)}
         self.family_state_ = {name: _fit_family(name, train, self.settings_) for name in families}
         columns = self._compute(self._resolve(X, "fit"), families)
         chosen = select(columns, y, self.max_features, prune=bool(self.prune), where=self._where("fit"))
@@ -241,11 +246,10 @@ class LogFeatures(UnitTransformer):
         self.feature_scores_ = chosen.scores
         return columns
 
-    def _resolve(self, X: pd.DataFrame, method: str) -> UnitIndex:
-        # Units are resolved on the shared log itself, not on a copied sub-log: no event table
-        # is duplicated, and per-event arrays memoised on the log serve every fold.
-        return self.unit_.resolve(self.log, X, missing_students=self.missing_students,
-                                  where=self._where(method))
+    def _fields_read(self) -> tuple[str, ...]:
+        """Every field the families may read; those the training log has are required when scoring."""
+        return ("student", "time", "action", "correct", "duration", "gap", "session", "step", "problem",
+                "skill", self.hint_level_field, self.hint_total_field)
 
     def _compute(self, index: UnitIndex, families) -> dict:
         view = UnitView(self.log, index, self.settings_)

@@ -44,6 +44,11 @@ from .operators import INFIX
 __all__ = ["Schema", "Checked", "CheckedSet", "check_rule", "check_all"]
 
 
+#: Keys that identify a student or one of their sessions: fitted norms are never stored per such key, so a
+#: fitted detector holds no student's data (contract 8, DEVELOPERS.md).
+PERSONAL_KEYS = ("student", "session")
+
+
 class Schema:
     """What the checker needs from a log: field kinds and category labels (looked up lazily)."""
 
@@ -310,6 +315,11 @@ class _Checker:
         if kinds[name] != "category":
             raise self.fail(f"{spec.name}() {p.name}={name!r}: {name!r} is a {kinds[name]} field; {p.name} needs "
                             "a category field such as 'step', 'problem' or 'skill'", raw.span)
+        if name in PERSONAL_KEYS:
+            raise self.fail(f"{spec.name}() {p.name}={name!r}: a norm per {name} would be learned from the training "
+                            f"students' own events and stored in the fitted detector, yet never apply to a student it "
+                            "has not seen (every held-out student falls back to the overall norm); use a key of the "
+                            "content such as 'step', 'problem' or 'skill'", raw.span)
         return name
 
     def arg_number_field(self, spec, p, raw) -> Node:

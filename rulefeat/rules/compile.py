@@ -58,6 +58,7 @@ class Evaluator:
         self.memo: dict[Node, np.ndarray] = {}
         self._uses = dict(plan.uses) if plan is not None else None
         self._early: dict[Node, set] = {}
+        self._label_cache: dict = {}
 
     # -- helpers for kernels -------------------------------------------------------------------------
     def type(self, node: Node):
@@ -96,10 +97,45 @@ class Evaluator:
         return kernels.groups_for(self.log, scope)
 
     def n_keys(self, field: str) -> int:
-        return len(self.program._categories[field])
+        return len(self.log.categories(field))
+
+    def codes_of(self, field: str, labels: list) -> np.ndarray:
+        """Codes of text labels in this log's ``field`` (-2 where it has no such label).
+
+        Labels are matched as text against the log being evaluated, so a program scores any log
+        with the same fields (a step never seen in it matches no event).
+        """
+        text = self.log.cached(("text-labels", field), lambda: _frame.text_labels(self.log.categories(field)))
+        codes = _frame.text_codes(text, [str(lbl) for lbl in labels])
+        return np.where(codes >= 0, codes, -2)
+
+    def translation(self, source: str, target: str) -> np.ndarray:
+        """Codes of ``source`` labels in ``target``'s code space (-2: no such label); ends with -1 for missing."""
+        key = ("translation", source, target)
+        if key not in self._label_cache:
+            codes = self.codes_of(target, list(self.log.categories(source)))
+            self._label_cache[key] = np.append(codes, -1).astype(np.int64)
+        return self._label_cache[key]
 
     def norm(self, call: Apply) -> dict:
         return self.norms[call]
+
+    def norm_keys(self, call: Apply) -> np.ndarray:
+        """Codes of the norm's ``per`` field in the code space of the log it was fitted on (-1: unseen key).
+
+        A norm is stored per code of the training log; another log numbers its labels its own way,
+        so its codes are translated by label (a key the training log lacks falls back to the overall norm).
+        """
+        per = call.arg("per")
+        key = ("norm-keys", per, id(self.program._norm_labels[call]))
+        if key not in self._label_cache:
+            codes, current = self.log.values(per), self.log.categories(per)
+            fitted = self.program._norm_labels[call]
+            if current is not fitted and not current.equals(fitted):
+                into = _frame.codes_for(current, fitted)
+                codes = np.where(codes >= 0, into[np.maximum(codes, 0)], -1) if len(into) else codes
+            self._label_cache[key] = codes
+        return self._label_cache[key]
 
     def rules(self, names) -> dict[str, np.ndarray]:
         """Each named rule's firing (bool), evaluating rules in the plan's order (dependencies first)."""
@@ -158,12 +194,12 @@ def _tri(holds: np.ndarray, missing: np.ndarray) -> np.ndarray:
 def _codes(ev: Evaluator, node: Node, field: str) -> np.ndarray:
     """Category codes of ``node`` in ``field``'s code space (-2: a label ``field`` does not have)."""
     if isinstance(node, Str):
-        return np.asarray(ev.program._codes_of(field, [node.value])[0], dtype=np.int64)
+        return np.asarray(ev.codes_of(field, [node.value])[0], dtype=np.int64)
     t = ev.type(node)
     codes = ev.value(node)
     if t.field == field:
         return codes
-    translate = ev.program._translation(t.field, field)  # ends with -1, the slot for missing codes
+    translate = ev.translation(t.field, field)  # ends with -1, the slot for missing codes
     return translate[np.where(codes >= 0, codes, len(translate) - 1)]
 
 
@@ -186,7 +222,7 @@ def _member(ev: Evaluator, node: Member) -> np.ndarray:
     t = ev.type(node.operand)
     a = ev.value(node.operand)
     if t.kind == "category":
-        items, missing = list(ev.program._codes_of(t.field, [i.value for i in node.items.items])), a < 0
+        items, missing = list(ev.codes_of(t.field, [i.value for i in node.items.items])), a < 0
     elif t.kind == "bool":
         items, missing = [TRUE if i.value else FALSE for i in node.items.items], a == UNKNOWN
     else:
@@ -288,13 +324,13 @@ class Program:
         parts = [*checked.rules.values(), *([checked.probe] if checked.probe else [])]
         self._types = {node: t for c in parts for node, t in c.types.items()}
         self._norm_calls = list(dict.fromkeys(call for c in parts for call in c.norms))
-        self._kinds, self._categories = self._schema(log)
-        self._label_cache: dict = {}
+        self._kinds = self._schema(log)
         self._state: dict | None = None
+        self._norm_labels: dict = {}
         self._plans: dict = {}
         self._plan(probe=checked.probe is not None).check_budget(checked, len(log), max_work, "RuleSet.bind")
 
-    def _schema(self, log) -> tuple[dict, dict]:
+    def _schema(self, log) -> dict:
         used = {"student"}
         probe = [self._checked.probe] if self._checked.probe else []
         for c in (*self._checked.rules.values(), *probe):
@@ -306,9 +342,14 @@ class Program:
                     used.update(v for k, v in params.items() if k in ("within", "per"))
                     if params.get("seconds") is not None:
                         used.add("time")
-        kinds = {name: log.kind(name) for name in sorted(used)}
-        cats = {name: log.categories(name) for name, kind in kinds.items() if kind == "category"}
-        return kinds, cats
+        # Kinds only: category labels are read from each log evaluated, so the program holds no
+        # student ids and scores any log with these fields (contract 8, DEVELOPERS.md).
+        return {name: log.kind(name) for name in sorted(used)}
+
+    @property
+    def schema(self) -> dict:
+        """``{field: kind}`` of every field the rules read; a log to evaluate needs each of them."""
+        return dict(self._kinds)
 
     def _check_log(self, log, where: str) -> None:
         self._plan(probe=self._checked.probe is not None and where == "RuleSet.values").check_budget(
@@ -318,25 +359,6 @@ class Program:
                 found = f"a {log.kind(name)} field" if log.has(name) else "missing"
                 raise LogSchemaError(f"{where}: the rules were compiled against a log whose {name!r} is a {kind} "
                                      f"field, but in this log it is {found}.{did_you_mean(name, log.fields)}")
-            cats = self._categories.get(name)
-            if cats is not None and log.categories(name) is not cats and not log.categories(name).equals(cats):
-                raise LogSchemaError(f"{where}: the categories of field {name!r} differ from those of the log the "
-                                     "rules were compiled against; evaluate that log or its sub-logs "
-                                     "(log.for_students(...)), which share its categories")
-
-    def _codes_of(self, field: str, labels: list) -> np.ndarray:
-        """Codes of text labels in ``field`` (-2 where the field has no such label)."""
-        if field not in self._label_cache:
-            self._label_cache[field] = _frame.text_labels(self._categories[field])
-        codes = _frame.text_codes(self._label_cache[field], [str(lbl) for lbl in labels])
-        return np.where(codes >= 0, codes, -2)
-
-    def _translation(self, source: str, target: str) -> np.ndarray:
-        key = (source, target)
-        if key not in self._label_cache:
-            codes = self._codes_of(target, list(self._categories[source]))
-            self._label_cache[key] = np.append(codes, -1).astype(np.int64)
-        return self._label_cache[key]
 
     def _plan(self, probe: bool = False) -> Plan:
         """The evaluation plan of every rule (or of the probe and the rules it needs), made once."""
@@ -375,6 +397,8 @@ class Program:
         self._check_log(log, "Program.fit")
         ev = Evaluator(log, self, norms=None)
         self._state = {call: FUNCTIONS[call.func].fit(ev, call, self.min_count) for call in self._norm_calls}
+        # The labels the state's codes stand for (steps, skills, ...; never students: see check.py).
+        self._norm_labels = {call: log.categories(call.arg("per")) for call in self._norm_calls}
         return self
 
     def evaluate(self, log) -> dict[str, np.ndarray]:

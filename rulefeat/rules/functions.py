@@ -139,12 +139,12 @@ def _fit_zscore(ev, call: Apply, min_count: int) -> dict:
 
 
 def _typical(ev, call: Apply) -> np.ndarray:
-    return norms.apply_typical(ev.norm(call), ev.log.values(call.arg("per")))
+    return norms.apply_typical(ev.norm(call), ev.norm_keys(call))
 
 
 def _zscore(ev, call: Apply) -> np.ndarray:
     field = call.arg("field")
-    return norms.apply_zscore(ev.norm(call), ev.array(field), ev.log.values(call.arg("per")))
+    return norms.apply_zscore(ev.norm(call), ev.array(field), ev.norm_keys(call))
 
 
 def _missing(ev, call: Apply) -> np.ndarray:

@@ -320,7 +320,7 @@ def _decode(raw, kind: str, program: Program, log, name: str) -> pd.Series:
         values = pd.array(np.where(raw == 1, None, raw == 2), dtype="boolean")
     elif kind == "category":
         field = program._types[program._checked.probe.tree].field
-        values = _frame.categorical(raw, program._categories[field])
+        values = _frame.categorical(raw, log.categories(field))
     else:
         values = raw
     return pd.Series(values, index=index, name=name)

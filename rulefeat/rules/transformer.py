@@ -70,6 +70,10 @@ class RuleFeatures(UnitTransformer):
     missing_students : {"error", "empty"}, default "error"
         Rows of ``X`` naming students absent from the log raise, or give empty
         units (counts 0, other summaries NaN).
+    empty_units : {"empty", "error"}, default "empty"
+        Units covering no events are kept with a warning (counts 0, other
+        summaries NaN), or refused with a ``UnitError`` naming them (what
+        :func:`~rulefeat.make_detector` uses).
 
     Examples
     --------
@@ -86,13 +90,14 @@ class RuleFeatures(UnitTransformer):
     """
 
     def __init__(self, log=None, rules=None, *, unit="window", select=None, min_count=5,
-                 missing_students="error"):
+                 missing_students="error", empty_units="empty"):
         self.rules = rules
         self.log = log
         self.unit = unit
         self.select = select
         self.missing_students = missing_students
         self.min_count = min_count
+        self.empty_units = empty_units
 
     def _constraints(self) -> dict:
         return {
@@ -109,6 +114,7 @@ class RuleFeatures(UnitTransformer):
         program = ruleset.bind(self.log, min_count=int(self.min_count))
         program.fit(self._training_log(X))
         self.program_ = program
+        self.log_schema_ = {"time": "number", **program.schema}
         self._fired_cache = None
         self.selected_ = self._selected(ruleset)
         self.feature_names_out_ = [f"{name}__{summary}" for name in self.selected_
@@ -132,14 +138,13 @@ class RuleFeatures(UnitTransformer):
         fitted norms (contract 3), so evaluating the whole log once serves every
         later ``transform`` (the training and the test rows of a fold alike).
         """
+        self._require_log("transform")
         if getattr(self, "_fired_cache", None) is None or self._fired_cache[0] != self.log.token:
             self._fired_cache = (self.log.token, self.program_.evaluate(self.log))
         return self._fired_cache[1]
 
-    def __getstate__(self) -> dict:
-        state = super().__getstate__()
-        state.pop("_fired_cache", None)  # recomputed on demand; keeps pickles small
-        return state
+    def _run_time_caches(self) -> tuple[str, ...]:
+        return ("_fired_cache",)  # firings over the bound log: recomputed on demand, never saved
 
     def transform(self, X: pd.DataFrame) -> pd.DataFrame:
         """One row per row of ``X``: the selected rules' summaries over that unit's events."""

@@ -5,6 +5,7 @@ import statistics
 import warnings
 from dataclasses import replace
 
+import numpy as np
 import pandas as pd
 import pytest
 
@@ -215,11 +216,21 @@ def test_program_needs_fit_when_rules_use_norms():
     assert state["count"].tolist() == [5, 3, 1] and state["value"].tolist() == [4, 3.5, 3.5]
 
 
-def test_log_with_other_schema_is_refused():
-    program = RuleSet([Rule("s1", when="step == 's1'")]).bind(LOG)
-    other = EventLog(RAW.assign(step=RAW["step"].replace({"s3": "s4"})))
-    with pytest.raises(LogSchemaError, match=r"Program.evaluate: the categories of field 'step' differ"):
-        program.evaluate(other)
+def test_log_with_other_labels_is_matched_by_label_and_other_schema_is_refused():
+    program = RuleSet([Rule("s1", when="step == 's1'"),
+                       Rule("slow", when="duration > typical(duration, per='step', q=1)")]).bind(LOG, min_count=1)
+    program.fit(LOG)
+    # Another log numbers its steps its own way: 's0' comes first and 's3' is gone.  Labels, not codes, decide.
+    relabelled = RAW.assign(step=RAW["step"].replace({"s3": "s4"}))
+    other_raw = pd.concat([RAW.iloc[:1].assign(student="z", step="s0"), relabelled], ignore_index=True)
+    other = EventLog(other_raw)
+    got = program.evaluate(other)
+    expected = program.evaluate(LOG)
+    rows = np.argsort(other.row_numbers)[1:]  # the events of RAW, in input order
+    back = np.argsort(LOG.row_numbers)
+    np.testing.assert_array_equal(got["s1"][rows], expected["s1"][back])
+    kept = (relabelled["step"] != "s4").to_numpy()  # 's4' is unseen: it takes the overall norm instead
+    np.testing.assert_array_equal(got["slow"][rows][kept], expected["slow"][back][kept])
     with pytest.raises(LogSchemaError, match=r"Program.fit: .*'step' is a category field, but in this log it is "
                                              r"missing"):
         program.fit(EventLog(RAW.drop(columns=["step"])))

@@ -17,6 +17,7 @@ from threadpoolctl import threadpool_limits
 
 from ..._aggregate import Aggregator
 from ...errors import EvaluationError
+from ...ship.bind import log_params
 from ..folds import column_names, dense, predict_scores, run_parallel
 from ..splits import Fold
 from .attribution import tree_shap
@@ -49,6 +50,10 @@ class FoldJob:
     shap_sample: int | None
     shap: bool
     threads: int | None = None
+
+    def __post_init__(self):
+        # The logs travel to the workers beside the transformers and are set again on every clone there.
+        object.__setattr__(self, "logs", {"mined": log_params(self.mined), "rules": log_params(self.rules)})
 
 
 @dataclass(eq=False)
@@ -83,11 +88,11 @@ class _Features:
 
 def _features(job: FoldJob, fold: Fold) -> _Features:
     Xtr, Xte, y_tr = job.X.iloc[fold.train], job.X.iloc[fold.test], job.y[fold.train]
-    mined = clone(job.mined)
+    mined = clone(job.mined).set_params(**job.logs["mined"])
     raw = mined.fit_transform(Xtr, y_tr)
     names = column_names(mined, raw, "mined")
     mined_test = dense(mined.transform(Xte))
-    rules = clone(job.rules)
+    rules = clone(job.rules).set_params(**job.logs["rules"])
     rules_train = rules.fit_transform(Xtr, y_tr)
     return _Features(dense(raw), mined_test, names, rules_train, rules.transform(Xte), rules)
 

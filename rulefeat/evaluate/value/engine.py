@@ -336,7 +336,9 @@ def make_detector(log, rules, *, unit="window", model=None, mined=None, random_s
     """The combined detector to ship: ``Pipeline([features: FeatureUnion(mined, rules), model])``.
 
     It is the ``combined`` variant of :func:`incremental_value`: cross-validating it with the same
-    student-grouped folds gives the same predictions.  Its feature union outputs pandas frames with columns
+    student-grouped folds gives the same predictions.  Its transformers refuse units that cover no events
+    (``empty_units="error"``): to score another log's units, bind the fitted detector to that log with
+    :func:`rulefeat.bind` (docs/ship.md).  Its feature union outputs pandas frames with columns
     ``mined__<feature>`` and ``rules__<rule>__<summary>``.
 
     Parameters
@@ -360,6 +362,12 @@ def make_detector(log, rules, *, unit="window", model=None, mined=None, random_s
     seeds = Seeds(random_state, 1, WHERE)  # the same seeds incremental_value gives the combined variant
     rules_tf, _ = rules_transformer(rules, log, unit)
     mined_tf = mined_transformer(mined, log, unit, seeds.features)
+    # A shipped detector refuses units without events (e.g. windows of another log's students) rather than
+    # scoring them as empty; transformers given ready-made keep their own setting.
+    if not hasattr(rules, "fit"):
+        rules_tf = rules_tf.set_params(empty_units="error")
+    if mined is None or isinstance(mined, dict):
+        mined_tf = mined_tf.set_params(**{"empty_units": "error", **(mined or {})})
     if model is None:
         model = default_model(task, seeds.model, available_cores())
     union = FeatureUnion([("mined", clone(mined_tf)), ("rules", clone(rules_tf))]).set_output(transform="pandas")
