@@ -32,7 +32,7 @@ import joblib
 
 from .._base import UnitTransformer
 from ..errors import DetectorFileError, LogSchemaError, ParameterError, RulefeatWarning
-from ..log import EventLog
+from ..log.eventlog import EventLog
 from .bind import bind, unit_transformers
 
 __all__ = ["save_detector", "load_detector", "read_manifest", "SavedDetector", "FORMAT", "FORMAT_VERSION"]

@@ -19,7 +19,7 @@ from sklearn.base import BaseEstimator
 
 from .._base import UnitTransformer, raise_schema_differences
 from ..errors import ParameterError
-from ..log import EventLog
+from ..log.eventlog import EventLog
 
 __all__ = ["bind", "unit_transformers", "log_params"]
 

@@ -10,7 +10,7 @@ from _ship_data import KEYS, fitted_detector, quiet_log, rules, simulated
 
 import rulefeat
 from rulefeat.errors import DetectorFileError, LogSchemaError, ParameterError, RulefeatWarning
-from rulefeat.evaluate.engine import demo_rules_path
+from rulefeat.evaluate.value.engine import demo_rules_path
 
 
 @pytest.fixture(scope="module")

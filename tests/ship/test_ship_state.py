@@ -18,7 +18,7 @@ from sklearn.preprocessing import StandardScaler
 
 import rulefeat
 from rulefeat.errors import ParameterError, RuleCheckError
-from rulefeat.evaluate.engine import demo_rules_path
+from rulefeat.evaluate.value.engine import demo_rules_path
 
 
 @pytest.fixture(scope="module")
@@ -100,7 +100,7 @@ def test_parallel_search_and_cross_validation_still_work(trained):
 def test_parallel_evaluation_with_fitted_prototypes_matches_sequential(trained):
     # The library ships the logs to its workers beside the transformers, so even a fitted prototype
     # (which pickles without its log) is rebuilt there reading the same events.
-    from rulefeat.evaluate.engine import compute_incremental_value
+    from rulefeat.evaluate.value.engine import compute_incremental_value
 
     _, windows, log, _ = trained
     X, y = windows[KEYS].reset_index(drop=True), windows["label"].to_numpy()
