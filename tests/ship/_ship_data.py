@@ -9,7 +9,7 @@ import pandas as pd
 from lightgbm import LGBMClassifier
 
 import rulefeat
-from rulefeat.evaluate.engine import demo_rules_path
+from rulefeat.evaluate.value.engine import demo_rules_path
 from rulefeat.simulate import tutor_logs
 
 KEYS = ["student", "start", "end"]
