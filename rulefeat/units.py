@@ -80,7 +80,8 @@ class Unit:
 
     def resolve(self, log: EventLog, X: pd.DataFrame, *, missing_students: str = "error",
                 where: str = "resolve") -> UnitIndex:
-        """Map the rows of ``X`` to the events they cover."""
+        """Map the rows of ``X`` (pandas, pyarrow or polars) to the events they cover."""
+        X = _frame.as_pandas(X)
         _check_table(X, self.keys(), where, self.name)
         if missing_students not in MISSING_POLICIES:
             raise UnitError(f"The 'missing_students' parameter of {where} must be one of "

@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .._frame import as_pandas
 from .._text import did_you_mean, show_rows
 from ..errors import EvaluationError
 from .models import TASKS
@@ -173,7 +174,8 @@ def check_units(log, units, unit, where: str = WHERE):
 
 
 def prepare(log, units, y, population, unit, task) -> Inputs:
-    """Check the units table against the log and the unit, and read y, students and populations."""
+    """Check the units table (pandas, pyarrow or polars) against the log and the unit, and read y, students and populations."""
+    units = as_pandas(units)
     spec = check_units(log, units, unit)
     values, y_column = read_target(units, y, len(units))
     task, y_coded, positive = resolve_task(values, task)
