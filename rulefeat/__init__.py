@@ -16,6 +16,7 @@ from .log import EventLog, LogIssue, read_events
 from .log_features import LogFeatures
 from .rule_features import RuleFeatures
 from .rules import Rule, RuleSet
+from .xapi import read_xapi
 
 __version__ = "0.1.0"
 
@@ -23,6 +24,7 @@ __all__ = [
     "EventLog",
     "LogIssue",
     "read_events",
+    "read_xapi",
     "Rule",
     "RuleSet",
     "RuleFeatures",
