@@ -14,7 +14,7 @@ import time
 import warnings
 from pathlib import Path
 
-from .base import EXIT_OK, Command, Progress, UsageError, print_json
+from .base import EXIT_OK, EXIT_PROBLEMS, Command, Progress, UsageError, print_json
 from .files import add_log_options, demo_rules_file, existing_file, read_log, read_table
 
 EXAMPLES = """\
@@ -131,6 +131,19 @@ def show(report, clock: dict) -> None:
         print(f"  {stage:<28} {seconds:8.2f}")
 
 
+def rules_check(rules: Path, log) -> bool:
+    """Every problem of the rules file on stderr before a long run (as ``rulefeat check`` prints them)."""
+    from ..rules import find_problems
+
+    problems = find_problems(rules, log)
+    for problem in problems:
+        print(f"rulefeat evaluate: error: {problem}\n", file=sys.stderr)
+    if problems:
+        print(f"rulefeat evaluate: {len(problems)} problem{'s' if len(problems) > 1 else ''} in {rules}; nothing "
+              "was evaluated.", file=sys.stderr)
+    return not problems
+
+
 def command_line() -> str:
     """How this run was started, for the report's reproducibility block."""
     first = Path(sys.argv[0]).name
@@ -153,6 +166,8 @@ def run(args, *, command: str | None = None) -> int:
     clock: dict = {}
     start = time.perf_counter()
     log, units, rules, outcomes = load(args, clock, progress)
+    if not rules_check(rules, log):
+        return EXIT_PROBLEMS
     if not args.json:
         print(f"{log!r}\n{len(units)} units, {units['student'].nunique() if 'student' in units else '?'} students")
     t0 = time.perf_counter()

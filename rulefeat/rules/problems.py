@@ -104,7 +104,7 @@ def rule_line(text: str, rule: str | None) -> int | None:
     """The 1-based line of the ``[rules.<rule>]`` header in a rules file's text, if there is one."""
     if rule is None:
         return None
-    header = re.compile(r"^\s*\[\s*rules\s*\.\s*(?:" + re.escape(rule) + r"|\"" + re.escape(rule) + r"\")\s*\]",
+    header = re.compile(r"^[ \t]*\[[ \t]*rules[ \t]*\.[ \t]*(?:" + re.escape(rule) + r"|\"" + re.escape(rule) + r"\")[ \t]*\]",
                         flags=re.MULTILINE)
     found = header.search(text)
     return None if found is None else text.count("\n", 0, found.start()) + 1
