@@ -349,3 +349,22 @@ def test_check_and_features_on_xapi_statements(demo, tmp_path, capsys):
     done = rulefeat_main(capsys, "check", folder / "rules.toml", "--events", tmp_path / "s.jsonl", "--columns", "{}",
                         check_code=2)
     assert "--xapi-mapping" in done.stderr
+
+
+def test_readme_command_lines_parse():
+    import shlex
+
+    from rulefeat.cli import build_parser
+
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    lines = []
+    for block in readme.split("```bash")[1:]:
+        text = block.split("```")[0].replace("\\\n", " ")
+        lines += [line.split("#")[0] for line in text.splitlines() if line.strip().startswith("rulefeat ")]
+    lines += re.findall(r"`(rulefeat [^`]+)`", readme.replace("\n", " "))
+    assert len(lines) >= 10
+    parser = build_parser()
+    for line in lines:
+        if "RULES" in line or "FILE" in line:  # the command table shows placeholders
+            line = line.replace("RULES", "r.toml").replace("REPORT.json", "r.json").replace("FILE", "f.csv")
+        parser.parse_args(shlex.split(line)[1:])

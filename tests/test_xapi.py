@@ -11,6 +11,7 @@ from __future__ import annotations
 import hashlib
 import json
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -254,6 +255,12 @@ def test_bad_files_and_mappings_name_the_problem(tmp_path):
 def test_the_mapping_file_in_the_docs_is_the_default():
     assert XapiMapping.from_toml("") == XapiMapping.default()
     assert XapiMapping.default().actions == {ANSWERED: "attempt"}
+    docs = (Path(__file__).resolve().parent.parent / "docs" / "xapi.md").read_text(encoding="utf-8")
+    blocks = [b.split("```")[0] for b in docs.split("```toml")[1:]]
+    assert len(blocks) == 2
+    assert XapiMapping.from_toml(blocks[0], defaults=False) == XapiMapping.default()
+    example = XapiMapping.from_toml(blocks[1])
+    assert example.actions[HINT] == "hint" and example.pattern
 
 
 def test_rules_run_on_an_xapi_log():
