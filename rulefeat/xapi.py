@@ -331,6 +331,8 @@ def _as_mapping(mapping) -> XapiMapping:
 
 
 def _statements(source) -> list:
+    if isinstance(source, (bytes, bytearray)):
+        return _parse_text(bytes(source).decode("utf-8", errors="replace"), "the bytes")
     if isinstance(source, (str, os.PathLike)) and not (isinstance(source, str) and source.lstrip()[:1] in "[{"):
         path = Path(source)
         try:

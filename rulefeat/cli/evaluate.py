@@ -189,7 +189,8 @@ def run(args, *, command: str | None = None) -> int:
         t1 = time.perf_counter()
         diagnostics = rulefeat.diagnose(log, units, args.label, rules, cv=args.folds, population=args.population,
                                         outcomes=outcomes, unit=args.unit, shap_sample=300, n_boot=args.n_boot,
-                                        random_state=args.seed, n_jobs=args.n_jobs or None)
+                                        random_state=args.seed, n_jobs=args.n_jobs or None,
+                                        verbose=int(progress.enabled))
         clock["diagnose (incl. SHAP)"] = time.perf_counter() - t1
     t1 = time.perf_counter()
     progress.say(f"writing the reports to {args.out}/")

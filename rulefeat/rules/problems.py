@@ -64,7 +64,7 @@ def find_problems(source, log=None) -> list[RulefeatError]:
         except RulefeatError as exc:
             problems.append(_tag(exc, name))
     if log is not None:
-        problems += _schema_problems(parsed, list(tables), log)
+        problems += _schema_problems(parsed, list(tables), log, complete=not problems)
     return sorted(problems, key=lambda p: list(tables).index(p.rule) if p.rule in tables else -1)
 
 
@@ -75,7 +75,7 @@ def _toml(text: str) -> dict:
         raise RuleSyntaxError(f"the rules file is not valid TOML: {exc}.") from None
 
 
-def _schema_problems(parsed: list, names: list, log) -> list[RulefeatError]:
+def _schema_problems(parsed: list, names: list, log, *, complete: bool) -> list[RulefeatError]:
     schema = Schema(log)
     problems = []
     for name, text, tree in parsed:
@@ -86,8 +86,8 @@ def _schema_problems(parsed: list, names: list, log) -> list[RulefeatError]:
             check_rule(name, text, tree, schema, names)
         except RulefeatError as exc:
             problems.append(_tag(exc, name))
-    if not problems and parsed:
-        try:  # what only shows across rules: cycles, fitted rules inside 'among'
+    if complete and not problems and parsed:
+        try:  # what only shows across rules (cycles, fitted rules inside 'among'), once every rule checks
             check_all(parsed, log)
         except RulefeatError as exc:
             problems.append(_tag(exc, getattr(exc, "rule", None)))
