@@ -217,4 +217,7 @@ def run(args, *, command: str | None = None) -> int:
 
 COMMAND = Command(help="evaluate whether the rules add value over mined features (the main job)",
                   examples=EXAMPLES, add_arguments=add_arguments, run=run,
-                  description=__doc__.split("\n\n")[0])
+                  description="Do the expert rules add value over mined log features? Student-grouped "
+                              "cross-validation of mined-only, rules-only and combined models, per-rule "
+                              "ablation, transfer to unseen populations, diagnostics; reports in --out. "
+                              "Without --events it runs on simulated demo data.")
