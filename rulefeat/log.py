@@ -27,10 +27,11 @@ class EventLog:
     Parameters
     ----------
     data : pandas.DataFrame, pyarrow.Table or polars.DataFrame
-        One row per action (Arrow and polars tables are converted column by column). Columns are matched to the canonical fields
-        ``student, time, action, correct, problem, step, skill, session,
-        duration, population`` by name or through ``columns``; every other
-        column is kept as an extra field that rules may use.
+        One row per action (Arrow and polars tables are converted column by
+        column). Columns are matched to the canonical fields ``student, time,
+        action, correct, problem, step, skill, session, duration,
+        population`` by name or through ``columns``; every other column is
+        kept as an extra field that rules may use.
     columns : dict, optional
         ``{field: column}`` for input columns named otherwise, e.g.
         ``{"student": "learner", "time": "ts"}``.

@@ -297,8 +297,8 @@ def read_xapi(source, mapping=None, *, unmapped: str = "warn", **log_options):
     from .log import EventLog
 
     if unmapped not in ("warn", "error", "ignore"):
-        raise LogSchemaError(f"The 'unmapped' parameter of read_xapi must be one of ['warn', 'error', 'ignore']. "
-                             f"Got {unmapped!r} instead.")
+        raise LogSchemaError("The 'unmapped' parameter of read_xapi must be one of ['warn', 'error', "
+                             f"'ignore']. Got {unmapped!r} instead.")
     table = xapi_events(source, mapping)
     if len(table.unmapped) and unmapped != "ignore":
         message = _unmapped_message(table)

@@ -51,7 +51,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"rulefeat {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
     for name, command in COMMANDS.items():
-        p = sub.add_parser(name, help=command.help, description=textwrap.fill(command.description or command.help, 110),
+        description = textwrap.fill(command.description or command.help, 110)
+        p = sub.add_parser(name, help=command.help, description=description,
                            epilog=command.examples + "\n\n" + EXIT_CODES,
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         command.add_arguments(p)
