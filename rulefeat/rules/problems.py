@@ -90,12 +90,12 @@ def _schema_problems(parsed: list, names: list, log, *, complete: bool) -> list[
         try:  # what only shows across rules (cycles, fitted rules inside 'among'), once every rule checks
             check_all(parsed, log)
         except RulefeatError as exc:
-            problems.append(_tag(exc, getattr(exc, "rule", None)))
+            problems.append(_tag(exc, vars(exc).get("rule")))
     return problems
 
 
 def _tag(exc: RulefeatError, rule: str | None) -> RulefeatError:
-    if getattr(exc, "rule", None) is None:
+    if vars(exc).get("rule") is None:
         exc.rule = rule
     return exc
 
