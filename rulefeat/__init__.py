@@ -27,12 +27,14 @@ from .mined.transformer import LogFeatures
 from .rules import Rule, RuleSet
 from .rules.transformer import RuleFeatures
 from .ship import SavedDetector, bind, load_detector, read_manifest, save_detector
+from .xapi import read_xapi
 
 __all__ = [
     "__version__",
     "EventLog",
     "LogIssue",
     "read_events",
+    "read_xapi",
     "Rule",
     "RuleSet",
     "RuleFeatures",

@@ -149,3 +149,29 @@ def frame_from_arrays(columns: dict[str, object], index=None) -> pd.DataFrame:
 
 def categorical(codes: np.ndarray, categories: pd.Index) -> pd.Categorical:
     return pd.Categorical.from_codes(np.asarray(codes), categories=categories)
+
+
+def as_pandas(data):
+    """A pandas DataFrame from a pyarrow Table / RecordBatch, a polars DataFrame / LazyFrame or any object
+    with the Arrow C stream interface (``__arrow_c_stream__``); anything else is returned unchanged.
+
+    The conversion is columnar (Arrow buffers to pandas columns, no loop over rows).  pyarrow and polars
+    are optional and only imported when such an object arrives.  Nullable Arrow booleans become pandas'
+    nullable ``boolean`` (not object columns of True/False/None), as in the pandas path of the simulator.
+    """
+    if isinstance(data, pd.DataFrame):
+        return data
+    root = type(data).__module__.split(".")[0]
+    if root == "polars":
+        if not hasattr(data, "to_arrow") and hasattr(data, "collect"):  # a LazyFrame
+            data = data.collect()
+        if not hasattr(data, "to_arrow"):
+            return data
+        data = data.to_arrow()
+    elif root != "pyarrow" and not hasattr(data, "__arrow_c_stream__"):
+        return data
+    import pyarrow as pa
+
+    if not isinstance(data, (pa.Table, pa.RecordBatch)):
+        data = pa.table(data)  # the Arrow PyCapsule stream protocol
+    return data.to_pandas(types_mapper={pa.bool_(): pd.BooleanDtype()}.get)

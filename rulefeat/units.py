@@ -85,6 +85,7 @@ class Unit:
         Units covering no events are kept with a warning (``empty_units="empty"``) or refused with a
         :class:`~rulefeat.errors.UnitError` naming them (``empty_units="error"``).
         """
+        X = _frame.as_pandas(X)
         _check_table(X, self.keys(), where, self.name)
         if missing_students not in MISSING_POLICIES:
             raise UnitError(f"The 'missing_students' parameter of {where} must be one of "

@@ -174,7 +174,8 @@ def check_units(log, units, unit, where: str = WHERE):
 
 
 def prepare(log, units, y, population, unit, task) -> Inputs:
-    """Check the units table against the log and the unit, and read y, students and populations."""
+    """Check the units table (pandas, pyarrow or polars) against the log and the unit, and read y, students and populations."""
+    units = _frame.as_pandas(units)
     spec = check_units(log, units, unit)
     values, y_column = read_target(units, y, len(units))
     task, y_coded, positive = resolve_task(values, task)

@@ -26,11 +26,12 @@ class EventLog:
 
     Parameters
     ----------
-    data : pandas.DataFrame
-        One row per action. Columns are matched to the canonical fields
-        ``student, time, action, correct, problem, step, skill, session,
-        duration, population`` by name or through ``columns``; every other
-        column is kept as an extra field that rules may use.
+    data : pandas.DataFrame, pyarrow.Table or polars.DataFrame
+        One row per action (Arrow and polars tables are converted column by
+        column). Columns are matched to the canonical fields ``student, time,
+        action, correct, problem, step, skill, session, duration,
+        population`` by name or through ``columns``; every other column is
+        kept as an extra field that rules may use.
     columns : dict, optional
         ``{field: column}`` for input columns named otherwise, e.g.
         ``{"student": "learner", "time": "ts"}``.
@@ -80,6 +81,7 @@ class EventLog:
                  correct_values=None, actions: dict | None = None, session_gap: float = 1800.0,
                  duration_cap: float = 600.0, duplicates: str = "keep"):
         _check_options(session_gap, duration_cap, duplicates)
+        data = _frame.as_pandas(data)
         built = derive.build(data, columns=columns, time_unit=time_unit, correct_values=correct_values,
                              actions=actions, session_gap=float(session_gap),
                              duration_cap=float(duration_cap), duplicates=duplicates)

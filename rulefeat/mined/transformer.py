@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 from sklearn.utils.validation import check_is_fitted
 
+from .. import _frame
 from .._base import UnitTransformer
 from .._text import did_you_mean
 from ..errors import ParameterError, UnitError
@@ -195,11 +196,12 @@ class LogFeatures(UnitTransformer):
         -------
         self : LogFeatures
         """
-        self._fit_columns(X, y)
+        self._fit_columns(_frame.as_pandas(X), y)
         return self
 
     def fit_transform(self, X: pd.DataFrame, y=None, **fit_params) -> pd.DataFrame:
         """Same as ``fit(X, y).transform(X)``, computing the training features only once."""
+        X = _frame.as_pandas(X)
         columns = self._fit_columns(X, y)
         return self._output(columns, X)
 
@@ -217,6 +219,7 @@ class LogFeatures(UnitTransformer):
             Columns ``get_feature_names_out()``.
         """
         check_is_fitted(self, "feature_names_out_")
+        X = _frame.as_pandas(X)
         self._check_table(X, self.unit_, "transform")
         index = self._resolve(X, "transform")
         kept = {name.split("__", 1)[0] for name in self.feature_names_out_}

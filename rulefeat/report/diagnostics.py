@@ -59,11 +59,20 @@ def _check(results) -> dict:
     return _plain(results)
 
 
+# The schema's column order, which JSON (written with sorted keys) does not keep.
+_PER_POPULATION = ("rule", "population", "n_students", "n_events", "firings", "rate", "share_students_any",
+                   "n_units", "n_positive", "auc")
+_HIERARCHICAL = ("available", "reason", "kind", "test", "statistic", "df1", "df2", "p_value", "r2_base", "r2_full",
+                 "delta_r2", "aic_base", "aic_full", "delta_aic", "nobs", "n_dropped", "base", "extra", "r2_name")
+_SHAP_SUMMARY = ("group", "n_features", "total_abs", "share", "mean_abs", "mean_abs_net")
+
+
 def _float_frame(rows: list, first: list) -> pd.DataFrame:
     frame = pd.DataFrame(rows, columns=first) if not rows else pd.DataFrame(rows)
     for column in frame.columns:
         if column not in ("rule", "primary", "population", "group"):
             frame[column] = pd.to_numeric(frame[column].astype(object).where(frame[column].notna(), np.nan))
+    first = [c for c in first if c in frame.columns]
     return frame[[*first, *[c for c in frame.columns if c not in first]]]
 
 
@@ -112,6 +121,16 @@ class RuleDiagnostics:
         """The results as JSON with sorted keys (byte-stable for equal results)."""
         return json.dumps(self._results, indent=indent, sort_keys=True, allow_nan=False, ensure_ascii=False)
 
+    @classmethod
+    def from_json(cls, text: str) -> RuleDiagnostics:
+        """Rebuild diagnostics from :meth:`to_json` text (the pooled SHAP tables are not kept in JSON)."""
+        try:
+            results = json.loads(text)
+        except (TypeError, json.JSONDecodeError) as exc:
+            raise EvaluationError(f"{_WHERE}.from_json: the text is not valid JSON ({exc}); pass the text "
+                                  "written by to_json, e.g. Path('diagnostics.json').read_text().") from exc
+        return cls(results)
+
     @property
     def rules(self) -> list[str]:
         """The diagnosed rules, in rule order."""
@@ -136,22 +155,24 @@ class RuleDiagnostics:
 
     def per_population(self) -> pd.DataFrame:
         """One row per (rule, population): students, events, firings, firing rate, units, standalone AUC."""
-        return _float_frame(self._results["per_population"], ["rule", "population"])
+        return _float_frame(self._results["per_population"], list(_PER_POPULATION))
 
     def shap_summary(self) -> pd.DataFrame:
         """One row per rule plus the mined group: features, total / mean ``|SHAP|`` and share of the total."""
         shap = self._results["shap"]
         if not shap.get("available"):
-            frame = pd.DataFrame(columns=["group", "n_features", "total_abs", "share", "mean_abs", "mean_abs_net"])
+            frame = pd.DataFrame(columns=list(_SHAP_SUMMARY))
             frame.attrs["reason"] = shap.get("reason")
             return frame
         rows = [{"group": r["rule"], **{k: v for k, v in r.items() if k != "rule"}} for r in shap["per_rule"]]
         rows.append({"group": shap["mined_group"], **(shap.get("mined") or {})})
-        return _float_frame(rows, ["group"])
+        return _float_frame(rows, list(_SHAP_SUMMARY))
 
     def hierarchical(self) -> dict:
         """The student-level hierarchical regression (``available`` False with a ``reason`` when not run)."""
-        return copy.deepcopy(self._results["hierarchical"])
+        block = copy.deepcopy(self._results["hierarchical"])
+        order = [k for k in _HIERARCHICAL if k in block]
+        return {k: block[k] for k in [*order, *[k for k in block if k not in order]]}
 
     def notes(self) -> list[str]:
         """Plain-words notes: statistics not computed and why, warnings from the folds, skipped parts."""

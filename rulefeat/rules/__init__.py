@@ -16,6 +16,7 @@ The whole language is described in ``docs/rules.md``. The public entry points:
 from .compile import Program
 from .functions import FUNCTIONS, SCOPES
 from .operators import INFIX, PREFIX
+from .problems import find_problems
 from .ruleset import DEFAULT_REPORT, SUMMARIES, Rule, RuleSet
 
-__all__ = ["Rule", "RuleSet", "Program", "SUMMARIES", "DEFAULT_REPORT", "FUNCTIONS", "INFIX", "PREFIX", "SCOPES"]
+__all__ = ["Rule", "RuleSet", "Program", "find_problems", "SUMMARIES", "DEFAULT_REPORT", "FUNCTIONS", "INFIX", "PREFIX", "SCOPES"]

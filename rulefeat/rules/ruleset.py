@@ -229,7 +229,7 @@ class RuleSet:
     @classmethod
     def from_toml(cls, source) -> RuleSet:
         """Read rules from TOML text or a ``.toml`` file (``[rules.<name>]`` tables; see docs/rules.md)."""
-        text = _read_source(source)
+        text = read_source(source)
         try:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
@@ -253,7 +253,8 @@ class RuleSet:
         return hashlib.sha256(self.to_toml().encode("utf-8")).hexdigest()
 
 
-def _read_source(source) -> str:
+def read_source(source) -> str:
+    """The text of a rules file: TOML text as it is, bytes decoded, a ``.toml`` path read."""
     if isinstance(source, bytes):
         return source.decode("utf-8", errors="replace")
     if isinstance(source, str) and ("\n" in source or not source.strip().endswith(".toml")):
@@ -268,6 +269,11 @@ def _read_source(source) -> str:
 
 
 def _rules_from(data: dict) -> list[Rule]:
+    return [rule_from_table(name, table) for name, table in rule_tables(data).items()]
+
+
+def rule_tables(data: dict) -> dict:
+    """The ``[rules.<name>]`` tables of a parsed rules file, after checking its top level."""
     extra = [k for k in data if k != "rules"]
     if extra:
         raise RuleSyntaxError(f"RuleSet.from_toml: unknown top-level key {extra[0]!r}."
@@ -276,10 +282,11 @@ def _rules_from(data: dict) -> list[Rule]:
     if not isinstance(tables, dict) or not tables:
         raise RuleSyntaxError("RuleSet.from_toml: the file defines no rules; add a table such as\n"
                               "[rules.quick_hint]\nwhen = \"action == 'hint' and gap < 3s\"")
-    return [_rule_from(name, table) for name, table in tables.items()]
+    return tables
 
 
-def _rule_from(name: str, table) -> Rule:
+def rule_from_table(name: str, table) -> Rule:
+    """One :class:`Rule` from its TOML table, checking the table's keys and value types."""
     where = f"RuleSet.from_toml: [rules.{name}]"
     if not isinstance(table, dict):
         raise RuleSyntaxError(f"{where} must be a table with a 'when' key, got a {type(table).__name__}.")

@@ -7,6 +7,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from .. import _frame
 from .._base import UnitTransformer
 from .._text import did_you_mean
 from ..errors import RuleCheckError
@@ -109,6 +110,7 @@ class RuleFeatures(UnitTransformer):
 
     def fit(self, X: pd.DataFrame, y=None) -> RuleFeatures:
         """Compile the rules and learn their norms from the training students' events."""
+        X = _frame.as_pandas(X)
         self._start_fit(X)
         ruleset = as_ruleset(self.rules)
         program = ruleset.bind(self.log, min_count=int(self.min_count))
@@ -148,6 +150,7 @@ class RuleFeatures(UnitTransformer):
 
     def transform(self, X: pd.DataFrame) -> pd.DataFrame:
         """One row per row of ``X``: the selected rules' summaries over that unit's events."""
+        X = _frame.as_pandas(X)
         agg = self._start_transform(X)
         fired = self._fired()
         columns = {}

@@ -92,7 +92,8 @@ def _unit_populations(X, population, log, log_codes, notes) -> tuple[np.ndarray,
 
 
 def prepare_units(log, units, y, population, unit) -> UnitInputs:
-    """Check the units table against the log and read the label, students and populations."""
+    """Check the units table (pandas, pyarrow or polars) against the log and read the label, students and populations."""
+    units = _frame.as_pandas(units)
     spec = check_units(log, units, unit, where=WHERE)
     values, y_column = read_target(units, y, len(units), where=WHERE)
     y_coded, positive = _binary_label(values)

@@ -1,0 +1,8 @@
+"""``python -m rulefeat``: the same as the ``rulefeat`` command."""
+
+import sys
+
+from .cli import main
+
+if __name__ == "__main__":
+    sys.exit(main())
