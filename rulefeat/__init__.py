@@ -22,12 +22,11 @@ from .evaluate import (
     incremental_value,
     make_detector,
 )
-from .log import EventLog, LogIssue, read_events
+from .log import EventLog, LogIssue, read_events, read_xapi
 from .mined.transformer import LogFeatures
 from .rules import Rule, RuleSet
 from .rules.transformer import RuleFeatures
 from .ship import SavedDetector, bind, load_detector, read_manifest, save_detector
-from .xapi import read_xapi
 
 __all__ = [
     "__version__",

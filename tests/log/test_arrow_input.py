@@ -18,7 +18,7 @@ from rulefeat.units import as_unit
 pa = pytest.importorskip("pyarrow")
 pl = pytest.importorskip("polars")
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 RULES = rulefeat.RuleSet.from_toml(ROOT / "rulefeat" / "data" / "demo_rules.toml")
 
 

@@ -38,8 +38,9 @@ from pathlib import Path
 
 import pandas as pd
 
-from ._text import did_you_mean
-from .errors import LogRepairWarning, LogSchemaError
+from .._text import did_you_mean
+from ..errors import LogRepairWarning, LogSchemaError
+from .eventlog import EventLog
 
 try:
     import tomllib
@@ -294,8 +295,6 @@ def read_xapi(source, mapping=None, *, unmapped: str = "warn", **log_options):
     >>> len(log), log.decoded("student").tolist(), log.values("duration").tolist()
     (1, ['s01'], [12.5])
     """
-    from .log import EventLog
-
     if unmapped not in ("warn", "error", "ignore"):
         raise LogSchemaError("The 'unmapped' parameter of read_xapi must be one of ['warn', 'error', "
                              f"'ignore']. Got {unmapped!r} instead.")
@@ -319,7 +318,7 @@ def _unmapped_message(table: XapiEvents) -> str:
     return (f"read_xapi: {c['unmapped']} of {c['statements']} statements could not be mapped to events and are "
             f"left out: {shown}{more}. Counts: {c['events']} events + {c['unmapped']} unmapped + "
             f"{c['voiding']} voiding + {c['voided']} voided = {c['statements']} statements. Use "
-            "rulefeat.xapi.xapi_events to list them all, or extend the mapping (docs/xapi.md).")
+            "rulefeat.log.xapi.xapi_events to list them all, or extend the mapping (docs/xapi.md).")
 
 
 def _as_mapping(mapping) -> XapiMapping:

@@ -22,7 +22,7 @@ try:
 except ImportError:  # Python 3.10
     import tomli as tomllib
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 FAST = ["--folds", "3", "--n-boot", "50", "--no-curve", "--no-ablation", "--no-transfer", "--n-jobs", "1"]
 
 

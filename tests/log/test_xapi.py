@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 
 import rulefeat
 from rulefeat.errors import LogRepairWarning, LogSchemaError
-from rulefeat.xapi import VOIDED_VERB, XapiMapping, parse_duration, read_xapi, xapi_events
+from rulefeat.log.xapi import VOIDED_VERB, XapiMapping, parse_duration, read_xapi, xapi_events
 
 ANSWERED = "http://adlnet.gov/expapi/verbs/answered"
 HINT = "https://example.org/xapi/verbs/asked-for-hint"  # a verb of our own (example.org is reserved)
@@ -255,7 +255,7 @@ def test_bad_files_and_mappings_name_the_problem(tmp_path):
 def test_the_mapping_file_in_the_docs_is_the_default():
     assert XapiMapping.from_toml("") == XapiMapping.default()
     assert XapiMapping.default().actions == {ANSWERED: "attempt"}
-    docs = (Path(__file__).resolve().parent.parent / "docs" / "xapi.md").read_text(encoding="utf-8")
+    docs = (Path(__file__).resolve().parents[2] / "docs" / "xapi.md").read_text(encoding="utf-8")
     blocks = [b.split("```")[0] for b in docs.split("```toml")[1:]]
     assert len(blocks) == 2
     assert XapiMapping.from_toml(blocks[0], defaults=False) == XapiMapping.default()
