@@ -108,7 +108,10 @@ class XapiMapping:
     @classmethod
     def default(cls) -> XapiMapping:
         """The packaged default mapping (``rulefeat/data/xapi_mapping.toml``)."""
-        return cls.from_toml(Path(__file__).resolve().parent / "data" / "xapi_mapping.toml", defaults=False)
+        from importlib import resources
+
+        text = resources.files("rulefeat").joinpath("data", "xapi_mapping.toml").read_text(encoding="utf-8")
+        return cls.from_toml(text, defaults=False)
 
     @classmethod
     def from_toml(cls, source, *, defaults: bool = True) -> XapiMapping:
