@@ -23,18 +23,15 @@ from sklearn.base import BaseEstimator, TransformerMixin
 from sklearn.utils.validation import check_is_fitted
 
 from ._aggregate import Aggregator
+from ._validation import InstanceOf, Options, Satisfies, validate
 from .errors import LogSchemaError, ParameterError, UnitError
 from .log.eventlog import EventLog
 from .units import UNIT_NAMES, Unit, as_unit
 
 
 def check_params(estimator, constraints: dict) -> None:
-    """Check parameters against ``{name: (test, 'what it must be')}`` with one uniform message."""
-    for name, (test, expected) in constraints.items():
-        value = getattr(estimator, name)
-        if not test(value):
-            raise ParameterError(f"The {name!r} parameter of {type(estimator).__name__} must be "
-                                 f"{expected}. Got {value!r} instead.")
+    """Check parameters against ``{name: Constraint or (test, 'what it must be')}`` (see ``_validation``)."""
+    validate(type(estimator).__name__, {name: getattr(estimator, name) for name in constraints}, constraints)
 
 
 def is_log(value) -> bool:
@@ -57,10 +54,10 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
 
     def _constraints(self) -> dict:
         return {
-            "log": (is_log, "a rulefeat.EventLog"),
-            "unit": (is_unit, f"one of {sorted(UNIT_NAMES)!r} or a rulefeat.units.Unit"),
-            "missing_students": (lambda v: v in ("error", "empty"), "one of ['error', 'empty']"),
-            "empty_units": (lambda v: v in ("error", "empty"), "one of ['error', 'empty']"),
+            "log": InstanceOf(EventLog, "a rulefeat.EventLog"),
+            "unit": Satisfies(is_unit, f"one of {sorted(UNIT_NAMES)!r} or a rulefeat.units.Unit"),
+            "missing_students": Options(("error", "empty")),
+            "empty_units": Options(("error", "empty")),
         }
 
     # -- the log is a run-time input ------------------------------------------------------------

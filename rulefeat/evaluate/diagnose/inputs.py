@@ -14,6 +14,7 @@ from sklearn.base import clone
 
 from ... import _frame
 from ..._text import did_you_mean
+from ..._validation import Interval, Satisfies, is_int, validate
 from ...errors import EvaluationError
 from ...rules.transformer import RuleFeatures, as_ruleset
 from .. import transformers
@@ -27,25 +28,24 @@ WHERE = "diagnose"
 GAIN = "gain"
 
 
-def _integer(value, name: str, minimum: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < minimum:
-        raise EvaluationError(f"The {name!r} parameter of {WHERE} must be an integer >= {minimum}. "
-                              f"Got {value!r} instead.")
-    return int(value)
+SETTINGS = {  # checked in this order, before the fold splitter
+    "random_state": Satisfies(lambda v: v is None or (is_int(v) and v >= 0), "an integer >= 0"),
+    "n_jobs": Satisfies(lambda v: v is None or (is_int(v) and v != 0),
+                        "None or a non-zero integer (-1 for one worker per core)"),
+    "shap_sample": Satisfies(lambda v: v is None or (is_int(v) and v >= 0), "an integer >= 0"),
+    "n_boot": Interval(int, 1, noun="an integer"),
+    "verbose": Interval(int, 0, noun="an integer"),
+}
 
 
 def check_settings(cv, shap_sample, n_boot, random_state, n_jobs, verbose) -> dict:
     """The validated settings; ``shap_sample`` None explains every held-out unit, 0 skips SHAP."""
-    if random_state is not None:
-        _integer(random_state, "random_state", 0)
-    if n_jobs is not None and (isinstance(n_jobs, bool) or not isinstance(n_jobs, (int, np.integer))
-                               or n_jobs == 0):
-        raise EvaluationError(f"The 'n_jobs' parameter of {WHERE} must be None or a non-zero integer (-1 for one "
-                              f"worker per core). Got {n_jobs!r} instead.")
+    validate(WHERE, {"random_state": random_state, "n_jobs": n_jobs, "shap_sample": shap_sample, "n_boot": n_boot,
+                     "verbose": verbose}, SETTINGS, error=EvaluationError)
     return {"cv": check_splitter(cv, where=WHERE),
-            "shap_sample": None if shap_sample is None else _integer(shap_sample, "shap_sample", 0),
-            "n_boot": _integer(n_boot, "n_boot", 1), "random_state": random_state,
-            "n_jobs": n_jobs, "verbose": _integer(verbose, "verbose", 0)}
+            "shap_sample": None if shap_sample is None else int(shap_sample),
+            "n_boot": int(n_boot), "random_state": random_state,
+            "n_jobs": n_jobs, "verbose": int(verbose)}
 
 
 @dataclass(frozen=True, eq=False)

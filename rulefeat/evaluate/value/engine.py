@@ -18,6 +18,7 @@ from sklearn.pipeline import FeatureUnion, Pipeline
 
 from ... import _frame
 from ..._text import did_you_mean
+from ..._validation import Flag, Interval, Options, validate
 from ...errors import EvaluationError
 from ...report.value import IncrementalValueReport
 from ..folds import Job, PrecomputedSource, Task, TransformerSource, run_all
@@ -33,11 +34,14 @@ __all__ = ["incremental_value", "incremental_value_precomputed", "make_detector"
 ALTERNATIVES = ("greater", "two-sided")
 
 
-def _positive_int(value, name: str, minimum: int = 1) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < minimum:
-        raise EvaluationError(f"The {name!r} parameter of {WHERE} must be an integer >= {minimum}. "
-                              f"Got {value!r} instead.")
-    return int(value)
+SETTINGS = {  # checked in this order; the fold splitter and the learning-curve fractions have their own checks
+    "alternative": Options(ALTERNATIVES),
+    "ablation": Flag(),
+    "transfer": Flag(),
+    "repeats": Interval(int, 1, noun="an integer"),
+    "n_boot": Interval(int, 1, noun="an integer"),
+    "verbose": Interval(int, 0, noun="an integer"),
+}
 
 
 def _fractions(learning_curve) -> tuple:
@@ -56,16 +60,12 @@ def _fractions(learning_curve) -> tuple:
 
 def _settings(cv, repeats, n_boot, alternative, learning_curve, ablation, transfer, verbose, random_state,
               unit) -> dict:
-    if alternative not in ALTERNATIVES:
-        raise EvaluationError(f"The 'alternative' parameter of {WHERE} must be one of {list(ALTERNATIVES)!r}. "
-                              f"Got {alternative!r} instead.{did_you_mean(str(alternative), ALTERNATIVES)}")
-    for name, flag in (("ablation", ablation), ("transfer", transfer)):
-        if not isinstance(flag, (bool, np.bool_)):
-            raise EvaluationError(f"The {name!r} parameter of {WHERE} must be True or False. Got {flag!r} instead.")
-    return {"cv": check_splitter(cv), "repeats": _positive_int(repeats, "repeats"),
-            "n_boot": _positive_int(n_boot, "n_boot"), "alternative": alternative,
+    validate(WHERE, {"alternative": alternative, "ablation": ablation, "transfer": transfer, "repeats": repeats,
+                     "n_boot": n_boot, "verbose": verbose}, SETTINGS, error=EvaluationError)
+    return {"cv": check_splitter(cv), "repeats": int(repeats),
+            "n_boot": int(n_boot), "alternative": alternative,
             "fractions": _fractions(learning_curve), "ablation": bool(ablation), "transfer": bool(transfer),
-            "verbose": _positive_int(verbose, "verbose", 0), "random_state": random_state,
+            "verbose": int(verbose), "random_state": random_state,
             "unit": unit if isinstance(unit, str) else getattr(unit, "name", str(unit))}
 
 
