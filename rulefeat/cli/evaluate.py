@@ -1,6 +1,6 @@
 """``rulefeat evaluate``: do the expert rules add value over mined log features?  The main job, from a shell.
 
-Without ``--events`` it runs on simulated logs of the fictional "Lumen Practice" platform with the demo rules;
+Without ``--events`` it runs on simulated logs of the fictional "Zorbleth" platform with the demo rules;
 with ``--events`` and ``--units`` on your own files.  It prints the summary and per-rule tables and the time of
 each stage, and writes the report folder (report.md, report.json, oof.csv, figures, report.html, diagnostics/).
 ``benchmarks/incremental_value.py`` is a thin wrapper around this command.

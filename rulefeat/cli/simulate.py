@@ -21,7 +21,7 @@ examples:
 
 Writes DIR/events.<ext> (one row per action), DIR/windows.<ext> (coded windows: student, start, end, label,
 population), DIR/outcomes.<ext> (pretest and posttest per student) and DIR/rules.toml (the demo rules).
-The platform, schools and students are invented ("Lumen Practice"); results on them say nothing about real
+The platform, schools and students are invented ("Zorbleth"); results on them say nothing about real
 students."""
 
 
@@ -66,6 +66,6 @@ def run(args) -> int:
 
 COMMAND = Command(help="write simulated demo events, windows, outcomes and rules as files", examples=EXAMPLES,
                   add_arguments=add_arguments, run=run,
-                  description="Simulate the fictional 'Lumen Practice' platform and write its logs, coded "
+                  description="Simulate the fictional 'Zorbleth' platform and write its logs, coded "
                               "windows, test scores and the demo rules, so every other command can be tried "
                               "on files.")

@@ -1,4 +1,4 @@
-"""The fictional "Lumen Practice" platform: simulated tutoring logs with known truth.
+"""The fictional "Zorbleth" platform: simulated tutoring logs with known truth.
 
 ``generate`` holds :func:`tutor_logs` and its results; ``plan`` draws the students, schools and
 behaviours, ``steps`` the actions, ``clock`` the times, ``labels`` the coded windows and outcomes, and
