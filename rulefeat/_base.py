@@ -77,9 +77,13 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
         UnitTransformer
             A new transformer; this one is left unchanged.
         """
-        from .ship.bind import bind
-
-        return bind(self, log, empty_units=empty_units)
+        where = f"{type(self).__name__}.bind"
+        validate(where, {"log": log, "empty_units": empty_units},
+                 {"log": InstanceOf(EventLog, "a rulefeat.EventLog"), "empty_units": Options(("error", "empty"))})
+        self._check_schema(log, where)
+        bound = copy.deepcopy(self)  # shares the old log rather than copying it (contract 1), then reads the new one
+        bound.log, bound.empty_units, bound.missing_students = log, empty_units, empty_units
+        return bound
 
     def _check_schema(self, log: EventLog, where: str) -> None:
         """Refuse a log lacking a field the fitted state reads, or holding it as another kind."""

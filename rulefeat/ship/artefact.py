@@ -31,6 +31,7 @@ from pathlib import Path
 import joblib
 
 from .._base import UnitTransformer
+from .._version import __version__
 from ..errors import DetectorFileError, LogSchemaError, ParameterError, RulefeatWarning
 from ..log.eventlog import EventLog
 from .bind import bind, unit_transformers
@@ -46,8 +47,6 @@ DEPENDENCIES = ("numpy", "pandas", "scikit-learn", "scipy", "joblib", "lightgbm"
 
 # ----------------------------------------------------------------------------- what the manifest records
 def _versions() -> dict:
-    from .. import __version__
-
     out = {"rulefeat": __version__, "python": platform.python_version()}
     for name in DEPENDENCIES:
         try:

@@ -40,8 +40,18 @@ HOSTILE = [
 ]
 
 
+@pytest.fixture(scope="module")
+def compiled_kernels():
+    # The history functions are compiled kernels, loaded from the on-disk cache on their first use
+    # in a process; that one-off load is not what "fails fast" is about, so it happens here.
+    warm = ("prev(action) == 'hint' and count_before(correct) < 2 and streak(correct) < 3 and first() "
+            "and count_recent(correct, actions=2) < 2 and count_recent(correct, seconds=5s) < 2 and "
+            "typical(duration) > 0")
+    RuleSet([Rule("warm", when=warm)]).evaluate(LOG)
+
+
 @pytest.mark.parametrize("text", HOSTILE, ids=[repr(t[:40]) for t in HOSTILE])
-def test_hostile_text_fails_fast_with_library_errors(text):
+def test_hostile_text_fails_fast_with_library_errors(text, compiled_kernels):
     start = time.perf_counter()
     try:
         program = RuleSet([Rule("r", when=text)]).bind(LOG)
