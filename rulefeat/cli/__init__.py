@@ -8,6 +8,7 @@ command        what it does
 ``features``   the rule and/or mined feature table of a units file, as Parquet or CSV
 ``simulate``   demo events, windows, outcomes and rules as files
 ``report``     re-render a saved evaluation (report.json) as HTML or Markdown
+``score``      score the units of a new log with a saved detector (rulefeat.save_detector)
 =============  ==================================================================================
 
 Each subcommand is one entry of :data:`COMMANDS` (a :class:`~rulefeat.cli.base.Command`: help, examples,
@@ -24,7 +25,7 @@ import sys
 import textwrap
 import warnings
 
-from . import check, evaluate, features, report, simulate
+from . import check, evaluate, features, report, score, simulate
 from .base import EXIT_CODES, EXIT_PROBLEMS, EXIT_USAGE, UsageError
 
 __all__ = ["main", "build_parser", "COMMANDS"]
@@ -35,6 +36,7 @@ COMMANDS = {
     "features": features.COMMAND,
     "simulate": simulate.COMMAND,
     "report": report.COMMAND,
+    "score": score.COMMAND,
 }
 
 

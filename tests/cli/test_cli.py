@@ -368,3 +368,47 @@ def test_readme_command_lines_parse():
         if "RULES" in line or "FILE" in line:  # the command table shows placeholders
             line = line.replace("RULES", "r.toml").replace("REPORT.json", "r.json").replace("FILE", "f.csv")
         parser.parse_args(shlex.split(line)[1:])
+
+
+# -- score ------------------------------------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def saved_detector(demo, tmp_path_factory):
+    folder, _ = demo
+    events, windows = pd.read_csv(folder / "events.csv"), pd.read_csv(folder / "windows.csv")
+    log = rulefeat.EventLog(events)
+    rules = rulefeat.RuleSet.from_toml(folder / "rules.toml")
+    keys = windows[["student", "start", "end"]]
+    detector = rulefeat.make_detector(log, rules, random_state=0).fit(keys, windows["label"])
+    path = tmp_path_factory.mktemp("detector") / "detector.zip"
+    rulefeat.save_detector(detector, path)
+    return path, detector, log, keys
+
+
+def test_score_equals_the_bound_detector(saved_detector, demo, tmp_path):
+    path, detector, log, keys = saved_detector
+    folder, _ = demo
+    out = tmp_path / "scores.csv"
+    sha = rulefeat.read_manifest(path)["payload"]["sha256"]
+    done = rulefeat_cmd("score", path, "--events", folder / "events.csv", "--units", folder / "windows.csv",
+                        "--out", out, "--sha256", sha, "--json", check_code=0)
+    summary = json.loads(done.stdout)
+    scored = pd.read_csv(out)
+    assert summary["units"] == len(scored) == len(keys)
+    expected = rulefeat.bind(detector, log).predict_proba(keys)[:, 1]
+    np.testing.assert_allclose(scored["score"].to_numpy(), expected, rtol=0, atol=1e-12)
+
+
+def test_score_refuses_tampered_hash_and_unknown_units(saved_detector, demo, tmp_path, capsys):
+    path, _, _, _ = saved_detector
+    folder, _ = demo
+    common = ["--events", folder / "events.csv"]
+    wrong = rulefeat_main(capsys, "score", path, *common, "--units", folder / "windows.csv", "--sha256", "0" * 64,
+                          check_code=1)
+    assert "sha256" in wrong.stderr.lower() or "hash" in wrong.stderr.lower()
+    stranger = tmp_path / "stranger.csv"
+    pd.DataFrame({"student": ["nobody-here"], "start": [0.0], "end": [60.0]}).to_csv(stranger, index=False)
+    refused = rulefeat_main(capsys, "score", path, *common, "--units", stranger, check_code=1)
+    assert "nobody-here" in refused.stderr
+    missing = rulefeat_main(capsys, "score", tmp_path / "absent.zip", *common, "--units", stranger,
+                            check_code=2)
+    assert missing.stderr.count("\n") == 1
