@@ -9,6 +9,7 @@ import pandas as pd
 
 from .. import _frame
 from ..errors import LogSchemaError
+from . import order as order_kernels
 from . import parse
 from .parse import LogIssue
 
@@ -47,9 +48,9 @@ def build(data: pd.DataFrame, *, columns, time_unit, correct_values, actions, se
                     "session_derived": "session" not in mapping, "duration_derived": "duration" not in mapping}
     _parse_fields(data, mapping, out, time_unit, correct_values, actions)
     _flag_content(out, has_correct="correct" in mapping)
-    order = _sort_order(out)
-    keep = _duplicates(out, order, duplicates)
-    _apply_order(out, order[keep], dropped=order[~keep])
+    order, tie, ordered = _sort_order(out)
+    keep = _duplicates(out, order, tie, duplicates)
+    _apply_order(out, order, keep, ordered)
     _derive(out, session_gap, duration_cap)
     return out
 
@@ -102,37 +103,29 @@ def _flag_content(out: Built, has_correct: bool) -> None:
                  "kept as missing")
 
 
-def _sort_order(out: Built) -> np.ndarray:
+def _sort_order(out: Built) -> tuple[np.ndarray, np.ndarray, dict]:
+    """The one sort (by student, then time, ties in input order), the positions in it tied in time, and
+    the sorted student and time arrays (made by the sort itself, so they need no gather)."""
     student, time = out.fields["student"], out.fields["time"]
-    # Student codes are dense: below 2**15 students numpy's stable sort of int16 is a radix sort.
-    small = student.astype(np.int16) if len(out.categories["student"]) < 2**15 else student
-    by_student = np.argsort(small, kind="stable")
-    t = time[by_student]
-    same = student[by_student][1:] == student[by_student][:-1]
-    back = np.flatnonzero(same & (t[1:] < t[:-1])) + 1
-    out.flag("rows out of time order within a student", np.sort(by_student[back]), "re-sorted")
-    if not len(back):
-        order = by_student
-    else:  # stable by time, then stable by student: lexsort's order
-        by_time = np.argsort(time, kind="stable")
-        order = by_time[np.argsort(small[by_time], kind="stable")]
-    s, t = student[order], time[order]
-    tie = np.flatnonzero((s[1:] == s[:-1]) & (t[1:] == t[:-1])) + 1
-    out.flag("events sharing a student and a time with the previous event (ties)", np.sort(order[tie]),
+    n_students = len(out.categories["student"])
+    order, ordered_time, start, back, tie = order_kernels.student_time_order(student, time, n_students)
+    out.flag("rows out of time order within a student", np.flatnonzero(back), "re-sorted")
+    tied = np.zeros(len(order), dtype=bool)
+    tied[order[tie]] = True
+    out.flag("events sharing a student and a time with the previous event (ties)", np.flatnonzero(tied),
              "kept in input order")
-    return order
+    ordered_student = np.repeat(np.arange(n_students, dtype=student.dtype), np.diff(start))
+    return order, tie, {"student": ordered_student, "time": ordered_time}
 
 
-def _duplicates(out: Built, order: np.ndarray, policy: str) -> np.ndarray:
+def _duplicates(out: Built, order: np.ndarray, tie_after: np.ndarray, policy: str) -> np.ndarray:
     """Mask over ``order`` of the events kept; exact duplicates can only hide inside time ties."""
-    s, t = out.fields["student"][order], out.fields["time"][order]
-    tie = np.zeros(len(order), dtype=bool)
-    same = (s[1:] == s[:-1]) & (t[1:] == t[:-1])
-    tie[1:] |= same
-    tie[:-1] |= same
     keep = np.ones(len(order), dtype=bool)
-    if not tie.any():
+    if not len(tie_after):
         return keep
+    tie = np.zeros(len(order), dtype=bool)
+    tie[tie_after] = True
+    tie[tie_after - 1] = True
     pos = np.flatnonzero(tie)
     block = pd.DataFrame({k: v[order[pos]] for k, v in out.fields.items()})
     dup = block.duplicated(keep="first").to_numpy()
@@ -143,11 +136,18 @@ def _duplicates(out: Built, order: np.ndarray, policy: str) -> np.ndarray:
     return keep
 
 
-def _apply_order(out: Built, order: np.ndarray, dropped: np.ndarray) -> None:
+def _apply_order(out: Built, order: np.ndarray, keep: np.ndarray, ordered: dict) -> None:
+    """Put every field in log order: one gather per field, except those the sort already ordered."""
+    dropped = not keep.all()
+    taken = order[keep] if dropped else order
     for name in list(out.fields):
-        out.fields[name] = np.ascontiguousarray(out.fields[name][order])
-    out.row = order.astype(np.int64)
-    out.dropped = np.sort(dropped).astype(np.int64)
+        if name in ordered:
+            values = ordered[name][keep] if dropped else ordered[name]
+        else:
+            values = out.fields[name][taken]
+        out.fields[name] = np.ascontiguousarray(values)
+    out.row = np.ascontiguousarray(taken, dtype=np.int64)
+    out.dropped = np.sort(order[~keep]).astype(np.int64)
 
 
 def _derive(out: Built, session_gap: float, duration_cap: float) -> None:
@@ -179,35 +179,23 @@ def _derive(out: Built, session_gap: float, duration_cap: float) -> None:
         out.put("duration", nxt, "number")
     for scope in ("step", "problem"):
         if scope in f:
-            out.put(f"{scope}_position", positions(group_ids(f, scope)), "number")
-
-
-def positions(groups: np.ndarray) -> np.ndarray:
-    """1-based order of each event within its group (events already in time order); NaN when ungrouped."""
-    order = np.argsort(groups, kind="stable")
-    g = groups[order]
-    start = np.ones(len(g), dtype=bool)
-    start[1:] = g[1:] != g[:-1]
-    first = np.maximum.accumulate(np.where(start, np.arange(len(g)), 0))
-    pos = np.empty(len(g), dtype=np.float64)
-    pos[order] = np.arange(len(g)) - first + 1
-    pos[groups < 0] = np.nan
-    return pos
+            out.put(f"{scope}_position", _group_positions(f, scope)[1], "number")
 
 
 def group_ids(fields: dict, scope: str) -> np.ndarray:
-    student = fields["student"].astype(np.int64)
+    """Ids of the (student, scope) groups in order of first appearance; -1 where the scope key is missing."""
     if scope == "student":
-        return student
+        return fields["student"].astype(np.int64)
     if scope not in fields:
         raise LogSchemaError(f"EventLog: the log has no {scope!r} field, so nothing can be grouped by "
                              f"{scope}. Map a column to {scope!r} when building the log.")
-    codes = fields[scope].astype(np.int64)
-    key = student * (int(codes.max(initial=-1)) + 2) + codes + 1
-    ids, _ = _frame.factorize_values(key, sort=False)
-    ids = ids.astype(np.int64)
-    ids[codes < 0] = -1
-    return ids
+    return _group_positions(fields, scope)[0]
+
+
+def _group_positions(fields: dict, scope: str) -> tuple[np.ndarray, np.ndarray]:
+    # One pass over the log's order: each student's events are one contiguous run.
+    codes = np.ascontiguousarray(fields[scope], dtype=np.int32)
+    return order_kernels.group_positions(fields["student"], codes, int(codes.max(initial=-1)) + 1)
 
 
 def bounds(student: np.ndarray, n_codes: int) -> tuple[np.ndarray, np.ndarray]:

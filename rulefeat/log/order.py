@@ -1,0 +1,101 @@
+"""The log's one sort and its per-group positions: linear passes compiled by numba (cached on disk).
+
+``student_time_order`` is what ``np.lexsort((time, student))`` returns — events by student, then by
+time, ties in input order — found without sorting the whole table: a stable counting sort on the
+dense student codes, then a stable merge sort of each student's times only where they are out of
+order (none at all when the input arrives sorted).  Each student's run is short, so the sorting
+stays in cache even on logs of tens of millions of events.
+
+``group_positions`` numbers the (student, key) groups of a log already in that order, in order of
+first appearance — the ids ``pandas.factorize(..., sort=False)`` gives the pair — and counts each
+event's 1-based position in its group, in one pass with a table over the key's codes that is reset
+at every student boundary.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+__all__ = ["student_time_order", "group_positions"]
+
+
+@njit(cache=True, nogil=True)
+def student_time_order(student, time, n_students):
+    """(order, times in that order, first position of every student code and one past the last,
+    mask over input rows out of time order within their student, positions in ``order`` tied in time).
+
+    A row is out of time order when an earlier row of the same student (in input order) has a later
+    time; a position ``k`` is tied when event ``order[k]`` has the student and time of ``order[k - 1]``.
+    """
+    n = len(student)
+    start = np.zeros(n_students + 1, dtype=np.int64)
+    for i in range(n):
+        start[student[i] + 1] += 1
+    for s in range(n_students):
+        start[s + 1] += start[s]
+    fill = start[:-1].copy()
+    order = np.empty(n, dtype=np.int64)
+    t = np.empty(n, dtype=np.float64)
+    for i in range(n):
+        k = fill[student[i]]
+        order[k] = i
+        t[k] = time[i]
+        fill[student[i]] = k + 1
+    back = np.zeros(n, dtype=np.bool_)
+    for s in range(n_students):
+        a, b = start[s], start[s + 1]
+        unsorted = False
+        for k in range(a + 1, b):
+            if t[k] < t[k - 1]:
+                back[order[k]] = True
+                unsorted = True
+        if unsorted:
+            perm = np.argsort(t[a:b], kind="mergesort") + a
+            order[a:b] = order[perm]
+            t[a:b] = t[perm]
+    ties = np.empty(n, dtype=np.int64)
+    n_ties = 0
+    for s in range(n_students):
+        for k in range(start[s] + 1, start[s + 1]):
+            if t[k] == t[k - 1]:
+                ties[n_ties] = k
+                n_ties += 1
+    return order, t, start, back, ties[:n_ties].copy()
+
+
+@njit(cache=True, nogil=True)
+def group_positions(student, codes, n_codes):
+    """(group id, 1-based position in the group) of every event; -1 and NaN where the code is missing.
+
+    ``student`` must hold each student's events in one contiguous run (the log's order).  Missing
+    codes (-1) take an id of their own at their first appearance, as the factorized pair does.
+    """
+    n = len(codes)
+    slot = np.full(n_codes + 1, -1, dtype=np.int64)
+    count = np.zeros(n_codes + 1, dtype=np.int64)
+    touched = np.empty(n_codes + 1, dtype=np.int64)
+    n_touched = 0
+    next_id = 0
+    ids = np.empty(n, dtype=np.int64)
+    pos = np.empty(n, dtype=np.float64)
+    for i in range(n):
+        if i > 0 and student[i] != student[i - 1]:
+            for j in range(n_touched):
+                slot[touched[j]] = -1
+            n_touched = 0
+        c = codes[i] + 1
+        if slot[c] < 0:
+            slot[c] = next_id
+            next_id += 1
+            count[c] = 0
+            touched[n_touched] = c
+            n_touched += 1
+        count[c] += 1
+        if c == 0:
+            ids[i] = -1
+            pos[i] = np.nan
+        else:
+            ids[i] = slot[c]
+            pos[i] = count[c]
+    return ids, pos
