@@ -43,6 +43,11 @@ def student_time_order(student, time, n_students):
         t[k] = time[i]
         fill[student[i]] = k + 1
     back = np.zeros(n, dtype=np.bool_)
+    longest = 0
+    for s in range(n_students):
+        longest = max(longest, start[s + 1] - start[s])
+    t_buf = np.empty(longest, dtype=np.float64)
+    i_buf = np.empty(longest, dtype=np.int64)
     for s in range(n_students):
         a, b = start[s], start[s + 1]
         unsorted = False
@@ -51,9 +56,7 @@ def student_time_order(student, time, n_students):
                 back[order[k]] = True
                 unsorted = True
         if unsorted:
-            perm = np.argsort(t[a:b], kind="mergesort") + a
-            order[a:b] = order[perm]
-            t[a:b] = t[perm]
+            _stable_sort(t[a:b], order[a:b], t_buf, i_buf)
     ties = np.empty(n, dtype=np.int64)
     n_ties = 0
     for s in range(n_students):
@@ -62,6 +65,41 @@ def student_time_order(student, time, n_students):
                 ties[n_ties] = k
                 n_ties += 1
     return order, t, start, back, ties[:n_ties].copy()
+
+
+@njit(cache=True, nogil=True)
+def _stable_sort(keys, items, key_buf, item_buf):
+    """Sort ``keys`` in place, stably, moving ``items`` alongside: insertion-sorted runs, then merges.
+
+    Hand-written rather than ``np.argsort(kind="mergesort")`` so that the on-disk cache holds the
+    whole compiled pass (numba's own sort is compiled again in every new process).
+    """
+    n = len(keys)
+    run = 32
+    for lo in range(0, n, run):
+        hi = min(lo + run, n)
+        for k in range(lo + 1, hi):
+            key, item = keys[k], items[k]
+            j = k - 1
+            while j >= lo and keys[j] > key:
+                keys[j + 1], items[j + 1] = keys[j], items[j]
+                j -= 1
+            keys[j + 1], items[j + 1] = key, item
+    width = run
+    while width < n:
+        for lo in range(0, n, 2 * width):
+            mid, hi = min(lo + width, n), min(lo + 2 * width, n)
+            i, j = lo, mid
+            for k in range(lo, hi):
+                if j < hi and (i >= mid or keys[j] < keys[i]):  # equal keys: the left run first
+                    key_buf[k], item_buf[k] = keys[j], items[j]
+                    j += 1
+                else:
+                    key_buf[k], item_buf[k] = keys[i], items[i]
+                    i += 1
+        keys[:] = key_buf[:n]
+        items[:] = item_buf[:n]
+        width *= 2
 
 
 @njit(cache=True, nogil=True)
