@@ -77,6 +77,11 @@ def parse_datetimes(series: pd.Series) -> pd.Series:
 
 
 def to_float(series: pd.Series) -> np.ndarray:
+    """float64 values, NaN where missing or not a number; may share memory with a float64 column."""
+    if isinstance(series.dtype, np.dtype) and series.dtype.kind in "fiu":
+        return np.asarray(series.to_numpy(), dtype=np.float64)
+    if isinstance(series.dtype, pd.api.extensions.ExtensionDtype) and is_numeric(series):
+        return series.to_numpy(dtype=np.float64, na_value=np.nan)
     return np.asarray(pd.to_numeric(series, errors="coerce").astype("float64").to_numpy(), dtype=np.float64)
 
 
@@ -96,11 +101,20 @@ def _categorical_codes(series: pd.Series) -> tuple[np.ndarray, pd.Index]:
     cats = series.cat.categories
     codes = series.cat.codes.to_numpy()
     used = np.bincount(codes[codes >= 0], minlength=len(cats)) > 0 if len(codes) else np.zeros(len(cats), bool)
+    if used.all() and _is_increasing(cats):  # the usual case: the codes are the answer already
+        return codes.astype(np.int32), pd.Index(cats)
     kept = cats[used]
     order = _sorted_order(kept)
     remap = np.full(len(cats) + 1, -1, dtype=np.int32)
     remap[np.flatnonzero(used)[order]] = np.arange(len(kept), dtype=np.int32)
     return remap[np.where(codes >= 0, codes, len(cats))], pd.Index(kept[order])
+
+
+def _is_increasing(cats: pd.Index) -> bool:
+    try:
+        return bool(cats.is_monotonic_increasing)
+    except TypeError:  # mixed, unorderable labels: _sorted_order orders them as text
+        return False
 
 
 def _sorted_order(cats: pd.Index) -> np.ndarray:

@@ -9,8 +9,7 @@ import pandas as pd
 
 from .. import _frame
 from ..errors import LogSchemaError
-from . import order as order_kernels
-from . import parse
+from . import parse, passes
 from .parse import LogIssue
 
 
@@ -108,7 +107,7 @@ def _sort_order(out: Built) -> tuple[np.ndarray, np.ndarray, dict]:
     the sorted student and time arrays (made by the sort itself, so they need no gather)."""
     student, time = out.fields["student"], out.fields["time"]
     n_students = len(out.categories["student"])
-    order, ordered_time, start, back, tie = order_kernels.student_time_order(student, time, n_students)
+    order, ordered_time, start, back, tie = passes.student_time_order(student, time, n_students)
     out.flag("rows out of time order within a student", np.flatnonzero(back), "re-sorted")
     tied = np.zeros(len(order), dtype=bool)
     tied[order[tie]] = True
@@ -152,31 +151,17 @@ def _apply_order(out: Built, order: np.ndarray, keep: np.ndarray, ordered: dict)
 
 def _derive(out: Built, session_gap: float, duration_cap: float) -> None:
     f = out.fields
-    student, time = f["student"], f["time"]
-    n = len(student)
-    new_student = np.ones(n, dtype=bool)
-    new_student[1:] = student[1:] != student[:-1]
-    step_back = np.full(n, np.nan)
-    step_back[1:] = time[1:] - time[:-1]
+    given = f.get("session", np.zeros(0, dtype=np.int32))
+    sess, gap, following = passes.sessions_and_gaps(f["student"], f["time"], given, session_gap)
     if "session" not in f:
-        starts = new_student | (step_back > session_gap)
-        sess = (np.cumsum(starts) - 1).astype(np.int32)
-        out.put("session", sess, "category", pd.RangeIndex(int(sess[-1]) + 1 if n else 0))
-        same_session = ~starts
-    else:
-        sess = f["session"]
-        same_session = ~new_student
-        same_session[1:] &= sess[1:] == sess[:-1]
-    gap = np.where(same_session, step_back, np.nan)
+        out.put("session", sess, "category", pd.RangeIndex(int(sess[-1]) + 1 if len(sess) else 0))
     out.put("gap", gap, "number")
     if "duration" not in f:
-        nxt = np.full(n, np.nan)
-        nxt[:-1] = np.where(same_session[1:], time[1:] - time[:-1], np.nan)
-        over = np.flatnonzero(nxt > duration_cap)
+        over = np.flatnonzero(following > duration_cap)
         out.flag(f"derived durations longer than duration_cap={duration_cap:g} s", np.sort(out.row[over]),
                  "capped")
-        nxt[over] = duration_cap
-        out.put("duration", nxt, "number")
+        following[over] = duration_cap
+        out.put("duration", following, "number")
     for scope in ("step", "problem"):
         if scope in f:
             out.put(f"{scope}_position", _group_positions(f, scope)[1], "number")
@@ -195,7 +180,7 @@ def group_ids(fields: dict, scope: str) -> np.ndarray:
 def _group_positions(fields: dict, scope: str) -> tuple[np.ndarray, np.ndarray]:
     # One pass over the log's order: each student's events are one contiguous run.
     codes = np.ascontiguousarray(fields[scope], dtype=np.int32)
-    return order_kernels.group_positions(fields["student"], codes, int(codes.max(initial=-1)) + 1)
+    return passes.group_positions(fields["student"], codes, int(codes.max(initial=-1)) + 1)
 
 
 def bounds(student: np.ndarray, n_codes: int) -> tuple[np.ndarray, np.ndarray]:

@@ -1,10 +1,14 @@
-"""The log's one sort and its per-group positions: linear passes compiled by numba (cached on disk).
+"""The compiled linear passes of the log build (numba, cached on disk).
 
 ``student_time_order`` is what ``np.lexsort((time, student))`` returns — events by student, then by
 time, ties in input order — found without sorting the whole table: a stable counting sort on the
 dense student codes, then a stable merge sort of each student's times only where they are out of
 order (none at all when the input arrives sorted).  Each student's run is short, so the sorting
 stays in cache even on logs of tens of millions of events.
+
+``sessions_and_gaps`` derives, over the sorted log, whether each event continues its predecessor's
+session, the session number when sessions are derived, ``gap`` and the derived ``duration`` — the
+same float subtractions as the array expressions they replace, in one pass.
 
 ``group_positions`` numbers the (student, key) groups of a log already in that order, in order of
 first appearance — the ids ``pandas.factorize(..., sort=False)`` gives the pair — and counts each
@@ -17,7 +21,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["student_time_order", "group_positions"]
+__all__ = ["student_time_order", "sessions_and_gaps", "group_positions"]
 
 
 @njit(cache=True, nogil=True)
@@ -100,6 +104,34 @@ def _stable_sort(keys, items, key_buf, item_buf):
         keys[:] = key_buf[:n]
         items[:] = item_buf[:n]
         width *= 2
+
+
+@njit(cache=True, nogil=True)
+def sessions_and_gaps(student, time, session, session_gap):
+    """(derived session numbers, gap, time to the next event in the session).
+
+    ``session`` holds given session codes, or is empty to derive sessions: a new one starts at each
+    student's first event and after a pause longer than ``session_gap``.  The time to the next event
+    is NaN at a session's last event (the caller caps it into the derived ``duration``).
+    """
+    n = len(student)
+    derive = len(session) == 0
+    number = np.empty(n if derive else 0, dtype=np.int32)
+    gap = np.full(n, np.nan)
+    following = np.full(n, np.nan)
+    current = -1
+    for i in range(n):
+        same = False
+        if i > 0 and student[i] == student[i - 1]:
+            step = time[i] - time[i - 1]
+            same = not step > session_gap if derive else session[i] == session[i - 1]
+        if same:
+            gap[i] = time[i] - time[i - 1]
+            following[i - 1] = gap[i]
+        if derive:
+            current += 0 if same else 1
+            number[i] = current
+    return number, gap, following
 
 
 @njit(cache=True, nogil=True)
