@@ -32,6 +32,7 @@ import pandas as pd
 from . import _frame
 from ._text import did_you_mean, show_rows
 from .errors import RulefeatWarning, UnitError
+from .log import passes
 from .log.derive import ranges_to_index
 from .log.eventlog import EventLog
 
@@ -278,17 +279,9 @@ def _keyed_order(log: EventLog, field: str):
 
 def _time_search(log: EventLog, students, times, side) -> np.ndarray:
     """Position of the first event of ``student`` with time >= t (side='left') or > t ('right')."""
-    unique_times, event_keys, width = log.cached(("time-keys",), lambda: _time_keys(log))
-    ranks = np.searchsorted(unique_times, times, side=side)
-    query = np.maximum(students, 0).astype(np.int64) * width + ranks
-    pos = np.searchsorted(event_keys, query, side="left")
-    return np.where(students >= 0, pos, 0)
-
-
-def _time_keys(log: EventLog):
-    unique_times, rank = log.time_ranks()
-    width = len(unique_times) + 1
-    return unique_times, log.values("student").astype(np.int64) * width + rank, width
+    first, last = log.student_bounds()
+    return passes.search_times(log.values("time"), first, last, np.asarray(students, dtype=np.int64),
+                               np.asarray(times, dtype=np.float64), side == "right")
 
 
 def _make_index(log, starts, ends, order, students, start_time) -> UnitIndex:

@@ -14,6 +14,9 @@ same float subtractions as the array expressions they replace, in one pass.
 first appearance — the ids ``pandas.factorize(..., sort=False)`` gives the pair — and counts each
 event's 1-based position in its group, in one pass with a table over the key's codes that is reset
 at every student boundary.
+
+``search_times`` finds time boundaries inside students: a binary search within each student's run
+of the sorted log, so a units table needs no ranking of the whole log's times.
 """
 
 from __future__ import annotations
@@ -21,7 +24,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["student_time_order", "sessions_and_gaps", "group_positions"]
+__all__ = ["student_time_order", "sessions_and_gaps", "group_positions", "search_times"]
 
 
 @njit(cache=True, nogil=True)
@@ -169,3 +172,30 @@ def group_positions(student, codes, n_codes):
             ids[i] = slot[c]
             pos[i] = count[c]
     return ids, pos
+
+
+@njit(cache=True, nogil=True)
+def search_times(time, first, last, students, times, right):
+    """Position of the first event of each ``students[q]`` with time >= ``times[q]`` (> with ``right``).
+
+    ``first``/``last`` bound each student code's run of the sorted ``time``; a NaN time sorts after
+    every time (as in ``np.searchsorted``); a student code below 0 gives 0.
+    """
+    out = np.zeros(len(students), dtype=np.int64)
+    for q in range(len(students)):
+        s = students[q]
+        if s < 0:
+            continue
+        lo, hi = first[s], last[s]
+        t = times[q]
+        if not t == t:
+            out[q] = hi
+            continue
+        while lo < hi:
+            mid = (lo + hi) // 2
+            if time[mid] < t or (right and time[mid] == t):
+                lo = mid + 1
+            else:
+                hi = mid
+        out[q] = lo
+    return out
