@@ -280,8 +280,11 @@ def _keyed_order(log: EventLog, field: str):
 def _time_search(log: EventLog, students, times, side) -> np.ndarray:
     """Position of the first event of ``student`` with time >= t (side='left') or > t ('right')."""
     first, last = log.student_bounds()
-    return passes.search_times(log.values("time"), first, last, np.asarray(students, dtype=np.int64),
-                               np.asarray(times, dtype=np.float64), side == "right")
+    students = np.asarray(students, dtype=np.int64)
+    out = np.empty(len(students), dtype=np.int64)
+    passes.search_times(log.values("time"), first, last, students, np.asarray(times, dtype=np.float64),
+                        side == "right", out)
+    return out
 
 
 def _make_index(log, starts, ends, order, students, start_time) -> UnitIndex:

@@ -106,14 +106,17 @@ def _sort_order(out: Built) -> tuple[np.ndarray, np.ndarray, dict]:
     """The one sort (by student, then time, ties in input order), the positions in it tied in time, and
     the sorted student and time arrays (made by the sort itself, so they need no gather)."""
     student, time = out.fields["student"], out.fields["time"]
-    n_students = len(out.categories["student"])
-    order, ordered_time, start, back, tie = passes.student_time_order(student, time, n_students)
+    n_students, n = len(out.categories["student"]), len(student)
+    order, ordered_time, back = np.empty(n, dtype=np.int64), np.empty(n), np.empty(n, dtype=bool)
+    start = passes.student_time_order(student, time, n_students, order, ordered_time, back)
     out.flag("rows out of time order within a student", np.flatnonzero(back), "re-sorted")
+    ordered_student = np.repeat(np.arange(n_students, dtype=student.dtype), np.diff(start))
+    same = (ordered_student[1:] == ordered_student[:-1]) & (ordered_time[1:] == ordered_time[:-1])
+    tie = np.flatnonzero(same) + 1
     tied = np.zeros(len(order), dtype=bool)
     tied[order[tie]] = True
     out.flag("events sharing a student and a time with the previous event (ties)", np.flatnonzero(tied),
              "kept in input order")
-    ordered_student = np.repeat(np.arange(n_students, dtype=student.dtype), np.diff(start))
     return order, tie, {"student": ordered_student, "time": ordered_time}
 
 
@@ -152,7 +155,10 @@ def _apply_order(out: Built, order: np.ndarray, keep: np.ndarray, ordered: dict)
 def _derive(out: Built, session_gap: float, duration_cap: float) -> None:
     f = out.fields
     given = f.get("session", np.zeros(0, dtype=np.int32))
-    sess, gap, following = passes.sessions_and_gaps(f["student"], f["time"], given, session_gap)
+    n = len(f["student"])
+    sess = np.empty(0 if "session" in f else n, dtype=np.int32)
+    gap, following = np.empty(n), np.empty(n)
+    passes.sessions_and_gaps(f["student"], f["time"], given, session_gap, sess, gap, following)
     if "session" not in f:
         out.put("session", sess, "category", pd.RangeIndex(int(sess[-1]) + 1 if len(sess) else 0))
     out.put("gap", gap, "number")
@@ -180,7 +186,9 @@ def group_ids(fields: dict, scope: str) -> np.ndarray:
 def _group_positions(fields: dict, scope: str) -> tuple[np.ndarray, np.ndarray]:
     # One pass over the log's order: each student's events are one contiguous run.
     codes = np.ascontiguousarray(fields[scope], dtype=np.int32)
-    return passes.group_positions(fields["student"], codes, int(codes.max(initial=-1)) + 1)
+    ids, pos = np.empty(len(codes), dtype=np.int64), np.empty(len(codes), dtype=np.float64)
+    passes.group_positions(fields["student"], codes, int(codes.max(initial=-1)) + 1, ids, pos)
+    return ids, pos
 
 
 def bounds(student: np.ndarray, n_codes: int) -> tuple[np.ndarray, np.ndarray]:

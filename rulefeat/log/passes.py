@@ -28,12 +28,13 @@ __all__ = ["student_time_order", "sessions_and_gaps", "group_positions", "search
 
 
 @njit(cache=True, nogil=True)
-def student_time_order(student, time, n_students):
-    """(order, times in that order, first position of every student code and one past the last,
-    mask over input rows out of time order within their student, positions in ``order`` tied in time).
+def student_time_order(student, time, n_students, order, t, back):
+    """Fill ``order`` (the sort), ``t`` (the times in that order) and ``back`` (a mask over input rows
+    out of time order within their student); return the first position of every student code and,
+    last, one past the end.
 
     A row is out of time order when an earlier row of the same student (in input order) has a later
-    time; a position ``k`` is tied when event ``order[k]`` has the student and time of ``order[k - 1]``.
+    time.  Outputs come allocated from numpy (huge pages for large arrays, see rules/scan.py).
     """
     n = len(student)
     start = np.zeros(n_students + 1, dtype=np.int64)
@@ -42,14 +43,12 @@ def student_time_order(student, time, n_students):
     for s in range(n_students):
         start[s + 1] += start[s]
     fill = start[:-1].copy()
-    order = np.empty(n, dtype=np.int64)
-    t = np.empty(n, dtype=np.float64)
     for i in range(n):
         k = fill[student[i]]
         order[k] = i
         t[k] = time[i]
         fill[student[i]] = k + 1
-    back = np.zeros(n, dtype=np.bool_)
+    back[:] = False
     longest = 0
     for s in range(n_students):
         longest = max(longest, start[s + 1] - start[s])
@@ -64,14 +63,7 @@ def student_time_order(student, time, n_students):
                 unsorted = True
         if unsorted:
             _stable_sort(t[a:b], order[a:b], t_buf, i_buf)
-    ties = np.empty(n, dtype=np.int64)
-    n_ties = 0
-    for s in range(n_students):
-        for k in range(start[s] + 1, start[s + 1]):
-            if t[k] == t[k - 1]:
-                ties[n_ties] = k
-                n_ties += 1
-    return order, t, start, back, ties[:n_ties].copy()
+    return start
 
 
 @njit(cache=True, nogil=True)
@@ -110,18 +102,18 @@ def _stable_sort(keys, items, key_buf, item_buf):
 
 
 @njit(cache=True, nogil=True)
-def sessions_and_gaps(student, time, session, session_gap):
-    """(derived session numbers, gap, time to the next event in the session).
+def sessions_and_gaps(student, time, session, session_gap, number, gap, following):
+    """Fill the derived session numbers, ``gap`` and the time to the next event in the session.
 
     ``session`` holds given session codes, or is empty to derive sessions: a new one starts at each
     student's first event and after a pause longer than ``session_gap``.  The time to the next event
-    is NaN at a session's last event (the caller caps it into the derived ``duration``).
+    is NaN at a session's last event (the caller caps it into the derived ``duration``); ``number``
+    is only written when sessions are derived.
     """
     n = len(student)
     derive = len(session) == 0
-    number = np.empty(n if derive else 0, dtype=np.int32)
-    gap = np.full(n, np.nan)
-    following = np.full(n, np.nan)
+    gap[:] = np.nan
+    following[:] = np.nan
     current = -1
     for i in range(n):
         same = False
@@ -134,12 +126,12 @@ def sessions_and_gaps(student, time, session, session_gap):
         if derive:
             current += 0 if same else 1
             number[i] = current
-    return number, gap, following
 
 
 @njit(cache=True, nogil=True)
-def group_positions(student, codes, n_codes):
-    """(group id, 1-based position in the group) of every event; -1 and NaN where the code is missing.
+def group_positions(student, codes, n_codes, ids, pos):
+    """Fill the group id and the 1-based position in the group of every event; -1 and NaN where the
+    code is missing.
 
     ``student`` must hold each student's events in one contiguous run (the log's order).  Missing
     codes (-1) take an id of their own at their first appearance, as the factorized pair does.
@@ -150,8 +142,6 @@ def group_positions(student, codes, n_codes):
     touched = np.empty(n_codes + 1, dtype=np.int64)
     n_touched = 0
     next_id = 0
-    ids = np.empty(n, dtype=np.int64)
-    pos = np.empty(n, dtype=np.float64)
     for i in range(n):
         if i > 0 and student[i] != student[i - 1]:
             for j in range(n_touched):
@@ -171,20 +161,19 @@ def group_positions(student, codes, n_codes):
         else:
             ids[i] = slot[c]
             pos[i] = count[c]
-    return ids, pos
 
 
 @njit(cache=True, nogil=True)
-def search_times(time, first, last, students, times, right):
+def search_times(time, first, last, students, times, right, out):
     """Position of the first event of each ``students[q]`` with time >= ``times[q]`` (> with ``right``).
 
     ``first``/``last`` bound each student code's run of the sorted ``time``; a NaN time sorts after
     every time (as in ``np.searchsorted``); a student code below 0 gives 0.
     """
-    out = np.zeros(len(students), dtype=np.int64)
     for q in range(len(students)):
         s = students[q]
         if s < 0:
+            out[q] = 0
             continue
         lo, hi = first[s], last[s]
         t = times[q]

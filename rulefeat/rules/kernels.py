@@ -50,6 +50,11 @@ def _flat(values: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(values)
 
 
+def _events(g: Groups, dtype) -> np.ndarray:
+    # Outputs are allocated here, by numpy (huge pages on large arrays), not inside the compiled pass.
+    return np.empty(len(g.order), dtype=dtype)
+
+
 def shift(values: np.ndarray, g: Groups, n: int, fill) -> np.ndarray:
     """Value at the n-th previous (n > 0) or next (n < 0) event of the group; ``fill`` past the edge."""
     values = _flat(values)
@@ -59,26 +64,27 @@ def shift(values: np.ndarray, g: Groups, n: int, fill) -> np.ndarray:
 
 def count_before(tri: np.ndarray, g: Groups) -> np.ndarray:
     """Earlier events of the group where ``tri`` is true (the current event excluded)."""
-    return scan.count_before(_flat(tri), TRUE, g.order, g.group)
+    return scan.count_before(_flat(tri), TRUE, g.order, g.group, _events(g, np.float64))
 
 
 def count_recent_actions(tri: np.ndarray, g: Groups, n: int) -> np.ndarray:
     """Events where ``tri`` is true among the current one and the n-1 before it in the group."""
-    return scan.count_recent_actions(_flat(tri), TRUE, g.order, g.group, n)
+    return scan.count_recent_actions(_flat(tri), TRUE, g.order, g.group, n, _events(g, np.float64))
 
 
 def count_recent_seconds(tri: np.ndarray, g: Groups, time: np.ndarray, seconds: float) -> np.ndarray:
     """Events where ``tri`` is true among the group's events with time >= t - seconds, up to the current one."""
-    return scan.count_recent_seconds(_flat(tri), TRUE, g.order, g.group, time, float(seconds))
+    return scan.count_recent_seconds(_flat(tri), TRUE, g.order, g.group, time, float(seconds),
+                                     _events(g, np.float64))
 
 
 def streak(tri: np.ndarray, g: Groups) -> np.ndarray:
     """Length of the run of consecutive group events ending at the current one where ``tri`` is true."""
-    return scan.streak(_flat(tri), TRUE, g.order, g.group)
+    return scan.streak(_flat(tri), TRUE, g.order, g.group, _events(g, np.float64))
 
 
 def first(tri: np.ndarray | None, g: Groups) -> np.ndarray:
     """True/false/unknown: the first event of its group (where ``tri`` is true, if given)."""
     use = tri is not None
     tri = _flat(tri) if use else np.zeros(1, dtype=np.uint8)
-    return scan.first(tri, TRUE, use, g.order, g.group, TRUE, FALSE, UNKNOWN)
+    return scan.first(tri, TRUE, use, g.order, g.group, TRUE, FALSE, UNKNOWN, _events(g, np.uint8))

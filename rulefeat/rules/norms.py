@@ -34,9 +34,10 @@ def grouped_quantile(values: np.ndarray, keys: np.ndarray, n_keys: int, q: float
     not by sorting the field.  NaN where a key has no values.
     """
     use = among is not None
+    values = np.ascontiguousarray(values, dtype=np.float64)
     count, low, high = scan.quantile_order_statistics(
-        np.ascontiguousarray(values, dtype=np.float64), np.ascontiguousarray(keys),
-        np.ascontiguousarray(among) if use else np.zeros(1, dtype=bool), use, n_keys, float(q))
+        values, np.ascontiguousarray(keys), np.ascontiguousarray(among) if use else np.zeros(1, dtype=bool),
+        use, n_keys, float(q), np.empty(len(values), dtype=np.float64))
     virtual = np.maximum(count - 1, 0) * q
     top = np.maximum(count - 1, 0)
     with np.errstate(invalid="ignore"):  # infinite values: inf - inf, as in numpy's own interpolation
@@ -92,8 +93,13 @@ def fit_zscore(values: np.ndarray, keys: np.ndarray, n_keys: int, *, min_count: 
 
 
 def _by_key(per_key: np.ndarray, overall: float, keys: np.ndarray) -> np.ndarray:
-    safe = np.where(keys >= 0, keys, 0)
-    return np.where(keys >= 0, per_key[safe] if len(per_key) else overall, overall)
+    keys = np.ascontiguousarray(keys)
+    if not len(per_key):
+        return np.full(len(keys), overall, dtype=np.float64)
+    if len(keys) and keys.max() >= len(per_key):  # the compiled lookup does not check bounds itself
+        raise IndexError(f"norm key {int(keys.max())} out of range for {len(per_key)} fitted keys")
+    return scan.by_key(np.ascontiguousarray(per_key, dtype=np.float64), keys, float(overall),
+                       np.empty(len(keys), dtype=np.float64))
 
 
 def apply_typical(state: dict, keys: np.ndarray) -> np.ndarray:

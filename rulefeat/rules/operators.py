@@ -36,8 +36,9 @@ def _arith(ufunc) -> Callable:
     def kernel(a, b):
         # Division by zero and overflow give missing, never inf, so later comparisons stay honest.
         with np.errstate(all="ignore"):
-            out = np.asarray(ufunc(a, b), dtype=np.float64)
-        return np.where(np.isfinite(out), out, np.nan)
+            out = np.array(ufunc(a, b), dtype=np.float64, copy=None)
+        np.copyto(out, np.nan, where=~np.isfinite(out))  # in place: one array of events, not two
+        return out
     return kernel
 
 

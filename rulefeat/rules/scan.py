@@ -11,7 +11,9 @@ writes its result at the event's position in the log, so no sorted copy of
 the inputs or of the output is made.
 
 Conditions arrive as the rule engine's three-valued uint8 arrays; a pass
-counts an event where the value equals ``TRUE``.
+counts an event where the value equals ``TRUE``.  Passes write into an ``out`` array the caller
+allocates with numpy: numpy asks the system for huge pages on large arrays, so a fresh 10M-event
+output is not paid for in millions of page faults, as memory allocated inside numba is.
 """
 
 from __future__ import annotations
@@ -19,7 +21,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["group_order", "shift", "count_before", "count_recent_actions", "count_recent_seconds",
+__all__ = ["group_order", "by_key", "shift", "count_before", "count_recent_actions", "count_recent_seconds",
            "streak", "first", "quantile_order_statistics"]
 
 
@@ -40,6 +42,14 @@ def group_order(ids, n_groups):
 
 
 @njit(cache=True, nogil=True)
+def by_key(per_key, keys, fallback, out):
+    """``per_key[key]`` for every event, ``fallback`` where the key is missing (< 0); one pass, one output."""
+    for i in range(len(keys)):
+        out[i] = per_key[keys[i]] if keys[i] >= 0 else fallback
+    return out
+
+
+@njit(cache=True, nogil=True)
 def shift(values, order, group, n, fill, out):
     """``out[event]`` = ``values`` at the n-th previous (n > 0) or next (n < 0) event of its group."""
     m = len(order)
@@ -53,9 +63,8 @@ def shift(values, order, group, n, fill, out):
 
 
 @njit(cache=True, nogil=True)
-def count_before(tri, true, order, group):
+def count_before(tri, true, order, group, out):
     """Earlier events of the group where ``tri == true`` (float64; NaN outside any group)."""
-    out = np.empty(len(order), dtype=np.float64)
     running = 0
     for k in range(len(order)):
         i = order[k]
@@ -71,9 +80,8 @@ def count_before(tri, true, order, group):
 
 
 @njit(cache=True, nogil=True)
-def count_recent_actions(tri, true, order, group, n):
+def count_recent_actions(tri, true, order, group, n, out):
     """Events where ``tri == true`` among the current one and the n - 1 before it in the group."""
-    out = np.empty(len(order), dtype=np.float64)
     running = 0
     start = 0
     for k in range(len(order)):
@@ -93,13 +101,12 @@ def count_recent_actions(tri, true, order, group, n):
 
 
 @njit(cache=True, nogil=True)
-def count_recent_seconds(tri, true, order, group, time, seconds):
+def count_recent_seconds(tri, true, order, group, time, seconds, out):
     """Events where ``tri == true`` among the group's events with time >= t - seconds, up to the current one.
 
     Two pointers: the window's first event only moves forward inside a group, because
     times never decrease along a group's run.
     """
-    out = np.empty(len(order), dtype=np.float64)
     running = 0
     lo = 0
     for k in range(len(order)):
@@ -121,9 +128,8 @@ def count_recent_seconds(tri, true, order, group, time, seconds):
 
 
 @njit(cache=True, nogil=True)
-def streak(tri, true, order, group):
+def streak(tri, true, order, group, out):
     """Length of the run of consecutive group events ending at the current one where ``tri == true``."""
-    out = np.empty(len(order), dtype=np.float64)
     run = 0
     for k in range(len(order)):
         i = order[k]
@@ -138,9 +144,8 @@ def streak(tri, true, order, group):
 
 
 @njit(cache=True, nogil=True)
-def first(tri, true, use_cond, order, group, yes, no, unknown):
+def first(tri, true, use_cond, order, group, yes, no, unknown, out):
     """``yes`` at the group's first event (its first event where ``tri == true`` with ``use_cond``)."""
-    out = np.empty(len(order), dtype=np.uint8)
     seen = False
     for k in range(len(order)):
         i = order[k]
@@ -194,39 +199,40 @@ def _ranks(c, q):
 
 
 @njit(cache=True, nogil=True)
-def quantile_order_statistics(values, keys, among, use_among, n_keys, q):
+def quantile_order_statistics(values, keys, among, use_among, n_keys, q, buffer):
     """Per key and overall, the two order statistics of the q-quantile of the training values.
 
     Training values are those not NaN (and where ``among`` is true, with ``use_among``); the
-    overall bucket (index ``n_keys``) holds all of them, the key buckets those whose key is
+    overall statistics (index ``n_keys``) are over all of them, a key's over those whose key is
     present (>= 0).  One pass counts, one pass buckets (a counting sort), then each bucket is
     partially ordered by selection: O(n) on average, and exact — an order statistic does not
-    depend on how it was found.  Returns (count, low, high) with ``n_keys + 1`` entries.
+    depend on how it was found.  ``buffer`` (float64, at least as long as ``values``) holds the
+    buckets.  Returns (count, low, high) with ``n_keys + 1`` entries.
     """
+    # One bucket per key and, last, one for values without a key: every value is stored once, and
+    # the overall statistics are selected over the whole array after the keys' own (selection only
+    # reorders values inside the range it is given, so the whole array keeps every value).
     count = np.zeros(n_keys + 2, dtype=np.int64)
     for i in range(len(values)):
         if values[i] != values[i] or (use_among and not among[i]):
             continue
-        count[n_keys + 1] += 1
-        if keys[i] >= 0:
-            count[keys[i] + 1] += 1
+        count[(keys[i] if keys[i] >= 0 else n_keys) + 1] += 1
     start = count.copy()
     for g in range(1, n_keys + 2):
         start[g] += start[g - 1]
     fill = start[:n_keys + 1].copy()
-    bucket = np.empty(start[n_keys + 1], dtype=np.float64)
+    bucket = buffer[:start[n_keys + 1]]
     for i in range(len(values)):
         if values[i] != values[i] or (use_among and not among[i]):
             continue
-        bucket[fill[n_keys]] = values[i]
-        fill[n_keys] += 1
-        if keys[i] >= 0:
-            bucket[fill[keys[i]]] = values[i]
-            fill[keys[i]] += 1
+        g = keys[i] if keys[i] >= 0 else n_keys
+        bucket[fill[g]] = values[i]
+        fill[g] += 1
+    count[n_keys + 1] = len(bucket)  # the overall count
     low = np.full(n_keys + 1, np.nan)
     high = np.full(n_keys + 1, np.nan)
     for g in range(n_keys + 1):
-        lo, hi = start[g], start[g + 1]
+        lo, hi = (start[g], start[g + 1]) if g < n_keys else (0, len(bucket))
         if hi == lo:
             continue
         r_lo, r_hi = _ranks(hi - lo, q)
