@@ -1,6 +1,7 @@
 """Benchmark: building an EventLog from a large in-memory DataFrame of simulated events.
 
-Targets (2 cores): 10M events in <= 10 s, peak memory <= 2x the input DataFrame.
+Targets (2 cores): <= 0.5 s per 1M events (issue 11), so 10M events in <= 5 s; peak memory <= 2x
+the input DataFrame.  The one-time loading of the compiled passes is timed and printed apart.
 Baseline measured in the same run: a hand-written pandas pass doing the minimum
 (stable sort by student and time, per-student gaps, session split) without any
 validation or accounting.
@@ -71,10 +72,13 @@ def main() -> None:
             warnings.simplefilter("ignore", LogRepairWarning)
             return EventLog(frame)
 
+    t0 = time.perf_counter()
+    build(df.iloc[:1000])  # the first build in a process loads the compiled passes from numba's disk cache
+    print(f"first build of 1,000 rows in this process (loads the compiled passes): {time.perf_counter() - t0:.2f} s")
     log, t_log, peak_log = measure(build, df)
     _, t_base, peak_base = measure(baseline, df)
     print(f"EventLog: {t_log:6.2f} s  {len(df) / t_log:12,.0f} rows/s  peak {peak_log / 2**20:7,.0f} MiB "
-          f"({peak_log / size:.2f}x input)   target <= 10 s and <= 2x input for 10M")
+          f"({peak_log / size:.2f}x input)   {t_log / len(df) * 1e6:.2f} s per 1M events (target <= 0.5 s, <= 2x input)")
     print(f"baseline: {t_base:6.2f} s  {len(df) / t_base:12,.0f} rows/s  peak {peak_base / 2**20:7,.0f} MiB "
           f"({peak_base / size:.2f}x input)   (sort + gaps + sessions only)")
     print(f"ratio EventLog / baseline: time {t_log / t_base:.2f}x, memory {peak_log / peak_base:.2f}x")
