@@ -47,9 +47,9 @@ def build(data: pd.DataFrame, *, columns, time_unit, correct_values, actions, se
                     "session_derived": "session" not in mapping, "duration_derived": "duration" not in mapping}
     _parse_fields(data, mapping, out, time_unit, correct_values, actions)
     _flag_content(out, has_correct="correct" in mapping)
-    order, tie, ordered = _sort_order(out)
+    order, tie, ordered, sorting = _sort_order(out)
     keep = _duplicates(out, order, tie, duplicates)
-    _apply_order(out, order, keep, ordered)
+    _apply_order(out, order, keep, ordered, sorting)
     _derive(out, session_gap, duration_cap)
     return out
 
@@ -102,13 +102,15 @@ def _flag_content(out: Built, has_correct: bool) -> None:
                  "kept as missing")
 
 
-def _sort_order(out: Built) -> tuple[np.ndarray, np.ndarray, dict]:
-    """The one sort (by student, then time, ties in input order), the positions in it tied in time, and
-    the sorted student and time arrays (made by the sort itself, so they need no gather)."""
+def _sort_order(out: Built) -> tuple[np.ndarray, np.ndarray, dict, dict]:
+    """The one sort (by student, then time, ties in input order), the positions in it tied in time, the
+    sorted student and time arrays (made by the sort itself, so they need no gather) and what
+    :func:`passes.permute` needs to move the other fields the same way."""
     student, time = out.fields["student"], out.fields["time"]
     n_students, n = len(out.categories["student"]), len(student)
     order, ordered_time, back = np.empty(n, dtype=np.int64), np.empty(n), np.empty(n, dtype=bool)
-    start = passes.student_time_order(student, time, n_students, order, ordered_time, back)
+    local, unsorted = np.empty(n, dtype=np.int64), np.empty(n_students, dtype=bool)
+    start = passes.student_time_order(student, time, n_students, order, ordered_time, back, local, unsorted)
     out.flag("rows out of time order within a student", np.flatnonzero(back), "re-sorted")
     ordered_student = np.repeat(np.arange(n_students, dtype=student.dtype), np.diff(start))
     same = (ordered_student[1:] == ordered_student[:-1]) & (ordered_time[1:] == ordered_time[:-1])
@@ -117,7 +119,8 @@ def _sort_order(out: Built) -> tuple[np.ndarray, np.ndarray, dict]:
     tied[order[tie]] = True
     out.flag("events sharing a student and a time with the previous event (ties)", np.flatnonzero(tied),
              "kept in input order")
-    return order, tie, {"student": ordered_student, "time": ordered_time}
+    sorting = {"student": student, "start": start, "local": local, "unsorted": unsorted}
+    return order, tie, {"student": ordered_student, "time": ordered_time}, sorting
 
 
 def _duplicates(out: Built, order: np.ndarray, tie_after: np.ndarray, policy: str) -> np.ndarray:
@@ -138,18 +141,21 @@ def _duplicates(out: Built, order: np.ndarray, tie_after: np.ndarray, policy: st
     return keep
 
 
-def _apply_order(out: Built, order: np.ndarray, keep: np.ndarray, ordered: dict) -> None:
-    """Put every field in log order: one gather per field, except those the sort already ordered."""
+def _apply_order(out: Built, order: np.ndarray, keep: np.ndarray, ordered: dict, sorting: dict) -> None:
+    """Put every field in log order, moved the way the sort moved the rows (no random gather)."""
     dropped = not keep.all()
-    taken = order[keep] if dropped else order
     for name in list(out.fields):
-        if name in ordered:
-            values = ordered[name][keep] if dropped else ordered[name]
-        else:
-            values = out.fields[name][taken]
-        out.fields[name] = np.ascontiguousarray(values)
-    out.row = np.ascontiguousarray(taken, dtype=np.int64)
+        values = ordered[name] if name in ordered else _permuted(out.fields[name], order, sorting)
+        out.fields[name] = np.ascontiguousarray(values[keep] if dropped else values)
+    out.row = np.ascontiguousarray(order[keep] if dropped else order, dtype=np.int64)
     out.dropped = np.sort(order[~keep]).astype(np.int64)
+
+
+def _permuted(values: np.ndarray, order: np.ndarray, sorting: dict) -> np.ndarray:
+    if values.dtype.kind not in "biuf":
+        return values[order]
+    return passes.permute(np.ascontiguousarray(values), sorting["student"], sorting["start"], sorting["local"],
+                          sorting["unsorted"], np.empty(len(values), dtype=values.dtype))
 
 
 def _derive(out: Built, session_gap: float, duration_cap: float) -> None:

@@ -24,14 +24,16 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["student_time_order", "sessions_and_gaps", "group_positions", "search_times"]
+__all__ = ["student_time_order", "permute", "sessions_and_gaps", "group_positions", "search_times"]
 
 
 @njit(cache=True, nogil=True)
-def student_time_order(student, time, n_students, order, t, back):
-    """Fill ``order`` (the sort), ``t`` (the times in that order) and ``back`` (a mask over input rows
-    out of time order within their student); return the first position of every student code and,
-    last, one past the end.
+def student_time_order(student, time, n_students, order, t, back, local, unsorted):
+    """Fill ``order`` (the sort), ``t`` (the times in that order), ``back`` (a mask over input rows out
+    of time order within their student), ``unsorted`` (per student code: were its rows out of time
+    order) and, inside those students' runs, ``local`` (the position in the student's run, in input
+    order, of the event at each position); return the first position of every student code and,
+    last, one past the end.  :func:`permute` moves any field the same way.
 
     A row is out of time order when an earlier row of the same student (in input order) has a later
     time.  Outputs come allocated from numpy (huge pages for large arrays, see rules/scan.py).
@@ -54,16 +56,48 @@ def student_time_order(student, time, n_students, order, t, back):
         longest = max(longest, start[s + 1] - start[s])
     t_buf = np.empty(longest, dtype=np.float64)
     i_buf = np.empty(longest, dtype=np.int64)
+    rows = np.empty(longest, dtype=np.int64)
     for s in range(n_students):
         a, b = start[s], start[s + 1]
-        unsorted = False
+        unsorted[s] = False
         for k in range(a + 1, b):
             if t[k] < t[k - 1]:
                 back[order[k]] = True
-                unsorted = True
-        if unsorted:
-            _stable_sort(t[a:b], order[a:b], t_buf, i_buf)
+                unsorted[s] = True
+        if unsorted[s]:
+            for k in range(a, b):
+                local[k] = k - a
+                rows[k - a] = order[k]
+            _stable_sort(t[a:b], local[a:b], t_buf, i_buf)
+            for k in range(a, b):
+                order[k] = rows[local[k]]
     return start
+
+
+@njit(cache=True, nogil=True)
+def permute(values, student, start, local, unsorted, out):
+    """``out`` = ``values`` in the order :func:`student_time_order` found, without a random gather.
+
+    First a counting-sort scatter by student (rows read in input order; each student's write
+    position only moves forward, so the writes stay in cache), then, for students whose rows
+    were out of time order, a permutation inside the student's short run.
+    """
+    fill = start[:-1].copy()
+    for i in range(len(values)):
+        out[fill[student[i]]] = values[i]
+        fill[student[i]] += 1
+    longest = 0
+    for s in range(len(unsorted)):
+        if unsorted[s]:
+            longest = max(longest, start[s + 1] - start[s])
+    run = np.empty(longest, dtype=out.dtype)
+    for s in range(len(unsorted)):
+        if unsorted[s]:
+            a, b = start[s], start[s + 1]
+            run[:b - a] = out[a:b]
+            for k in range(a, b):
+                out[k] = run[local[k]]
+    return out
 
 
 @njit(cache=True, nogil=True)

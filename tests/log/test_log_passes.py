@@ -16,7 +16,11 @@ from rulefeat.log import passes
 def _order(student, time, n_students):
     n = len(student)
     order, t, back = np.empty(n, dtype=np.int64), np.empty(n), np.empty(n, dtype=bool)
-    start = passes.student_time_order(student, time, n_students, order, t, back)
+    local, unsorted = np.empty(n, dtype=np.int64), np.empty(n_students, dtype=bool)
+    start = passes.student_time_order(student, time, n_students, order, t, back, local, unsorted)
+    for values in (time, np.arange(n, dtype=np.int32), (np.arange(n) % 3 - 1).astype(np.int8)):
+        moved = passes.permute(values, student, start, local, unsorted, np.empty(n, dtype=values.dtype))
+        np.testing.assert_array_equal(moved, values[order])  # every field moves the way the rows did
     return order, t, back, start
 
 
