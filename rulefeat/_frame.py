@@ -100,7 +100,9 @@ def _categorical_codes(series: pd.Series) -> tuple[np.ndarray, pd.Index]:
     """Codes over the used categories only, in sorted label order; O(n) (no sort of the codes)."""
     cats = series.cat.categories
     codes = series.cat.codes.to_numpy()
-    used = np.bincount(codes[codes >= 0], minlength=len(cats)) > 0 if len(codes) else np.zeros(len(cats), bool)
+    used = np.zeros(len(cats) + 1, dtype=bool)
+    used[codes] = True  # a missing code (-1) marks the extra last slot
+    used = used[:-1]
     if used.all() and _is_increasing(cats):  # the usual case: the codes are the answer already
         return codes.astype(np.int32), pd.Index(cats)
     kept = cats[used]
