@@ -50,6 +50,7 @@ def build(data: pd.DataFrame, *, columns, time_unit, correct_values, actions, se
     order, tie, ordered, sorting = _sort_order(out)
     keep = _duplicates(out, order, tie, duplicates)
     _apply_order(out, order, keep, ordered, sorting)
+    del order, tie, ordered, sorting, keep  # the sort's work arrays go before the derived fields arrive
     _derive(out, session_gap, duration_cap)
     return out
 
