@@ -7,6 +7,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from ..limits import nesting_depth
 from .base import UsageError
 
 __all__ = ["TABLE_SUFFIXES", "XAPI_SUFFIXES", "demo_rules_file", "read_table", "write_table", "parse_columns", "read_log",
@@ -76,6 +77,9 @@ def parse_columns(text: str | None) -> dict | None:
     source = text
     if not text.lstrip().startswith("{") and Path(text).is_file():
         source = Path(text).read_text(encoding="utf-8")
+    if nesting_depth(source, "json") > 2:
+        raise UsageError("--columns: expected a flat JSON object of field names to column names, e.g. "
+                         """'{"student": "learner_id", "time": "timestamp"}'""")
     try:
         value = json.loads(source)
     except json.JSONDecodeError as exc:

@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import EvaluationError
+from ..limits import check_depth
 from .markdown import markdown_table
 from .plain import to_plain
 from .tables import CAUTIONS, interval, number, p_text, signed
@@ -124,6 +125,8 @@ class RuleDiagnostics:
     @classmethod
     def from_json(cls, text: str) -> RuleDiagnostics:
         """Rebuild diagnostics from :meth:`to_json` text (the pooled SHAP tables are not kept in JSON)."""
+        if isinstance(text, str):
+            check_depth(text, "json", f"{_WHERE}.from_json", EvaluationError)
         try:
             results = json.loads(text)
         except (TypeError, json.JSONDecodeError) as exc:

@@ -19,6 +19,7 @@ import pandas as pd
 
 from .._text import did_you_mean
 from ..errors import EvaluationError
+from ..limits import check_depth
 from .markdown import render_markdown
 from .plain import to_plain
 from .tables import LOWER_IS_BETTER, METRIC_LABELS, metric_order, signed, tables
@@ -316,6 +317,8 @@ class IncrementalValueReport:
 
         The JSON holds no predictions: pass ``oof`` (e.g. read from ``oof.csv``) to draw the ROC again.
         """
+        if isinstance(text, str):
+            check_depth(text, "json", "IncrementalValueReport.from_json", EvaluationError)
         try:
             results = json.loads(text)
         except (TypeError, json.JSONDecodeError) as exc:

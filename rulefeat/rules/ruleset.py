@@ -15,6 +15,7 @@ import pandas as pd
 from .. import _frame
 from .._text import did_you_mean
 from ..errors import ParameterError, RuleCheckError, RuleSyntaxError
+from ..limits import check_depth
 from .check import check_all
 from .compile import MAX_WORK, Program
 from .functions import FUNCTIONS
@@ -230,6 +231,7 @@ class RuleSet:
     def from_toml(cls, source) -> RuleSet:
         """Read rules from TOML text or a ``.toml`` file (``[rules.<name>]`` tables; see docs/rules.md)."""
         text = read_source(source)
+        check_depth(text, "toml", f"RuleSet.from_toml: {source_name(source)}", RuleSyntaxError)
         try:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
@@ -253,11 +255,21 @@ class RuleSet:
         return hashlib.sha256(self.to_toml().encode("utf-8")).hexdigest()
 
 
+def _is_path(source) -> bool:
+    return isinstance(source, os.PathLike) or (
+        isinstance(source, str) and "\n" not in source and source.strip().endswith(".toml"))
+
+
+def source_name(source) -> str:
+    """How errors name a rules source: the file as given, or "the rules text"."""
+    return f"the rules file {str(source)!r}" if _is_path(source) else "the rules text"
+
+
 def read_source(source) -> str:
     """The text of a rules file: TOML text as it is, bytes decoded, a ``.toml`` path read."""
     if isinstance(source, bytes):
         return source.decode("utf-8", errors="replace")
-    if isinstance(source, str) and ("\n" in source or not source.strip().endswith(".toml")):
+    if isinstance(source, str) and not _is_path(source):
         return source
     if not isinstance(source, (str, os.PathLike)):
         raise RuleSyntaxError(f"RuleSet.from_toml: expected TOML text or a path to a .toml file, got "

@@ -387,7 +387,7 @@ def test_incremental_value_returns_the_report(sim):
     ({"y": np.arange(288) % 4}, "cannot tell whether 'y'"),
     ({"y": np.zeros(288)}, "single value"),
     ({"task": "classify"}, "'task' parameter of incremental_value must be one of"),
-    ({"cv": 1}, "at least 2 folds"),
+    ({"cv": 1}, "between 2 and 1000 folds"),
     ({"repeats": 0}, "'repeats' parameter of incremental_value must be an integer >= 1"),
     ({"n_boot": 0}, "'n_boot' parameter"),
     ({"alternative": "greter"}, "'alternative' parameter.*Did you mean 'greater'"),
