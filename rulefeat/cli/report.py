@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..report.writing import write_file
 from .base import EXIT_OK, Command, Progress, UsageError, print_json
 from .files import existing_file, read_table
 
@@ -46,7 +47,7 @@ def run(args) -> int:
         progress.say(f"rendering {args.html}")
         written["html"] = str(report.save_html(args.html, diagnostics=diagnostics))
     if args.markdown:
-        Path(args.markdown).write_text(report.to_markdown(), encoding="utf-8")
+        write_file(args.markdown, report.to_markdown(), where="rulefeat report --markdown")
         written["markdown"] = args.markdown
     if args.json:
         print_json({"report": str(source), "headline": headline(report), "written": written,

@@ -331,6 +331,19 @@ class IncrementalValueReport:
             oof = pd.DataFrame({c: pd.Series(dtype="float64") for c in _OOF_COLUMNS})
         return cls(results, oof, oof_transfer)
 
+    def with_inputs(self, inputs: Mapping[str, Mapping]) -> IncrementalValueReport:
+        """A copy whose ``reproducibility`` block also lists the input files: ``{role: {"name", "sha256",
+        "bytes"}}``, file names and content hashes only, never a folder of the machine that ran it."""
+        for role, record in inputs.items():
+            if not isinstance(record, Mapping) or "/" in str(record.get("name", "")) or "\\" in str(
+                    record.get("name", "")):
+                raise EvaluationError(f"IncrementalValueReport.with_inputs: inputs[{role!r}] must be a dict with "
+                                      f"a file 'name' (no folders) and its 'sha256'; got {record!r}.")
+        results = copy.deepcopy(self._results)
+        sorted_inputs = json.loads(json.dumps(dict(inputs), sort_keys=True))  # as from_json will read it back
+        results["reproducibility"] = {**results["reproducibility"], "inputs": sorted_inputs}
+        return type(self)(results, self._oof, self._oof_transfer)
+
     def to_markdown(self, images: Mapping[str, str] | None = None) -> str:
         """The report as Markdown; ``images`` maps a figure name (``roc``, ...) to a file to link."""
         return render_markdown(self, tables(self), dict(images or {}))

@@ -51,6 +51,7 @@ def new_folder(target: str | os.PathLike, *, overwrite: bool, where: str) -> Ite
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
         work = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".partial", dir=target.parent))
+        work.chmod(0o755)  # mkdtemp's 0700 would hide the report from the user's group
     except OSError as exc:
         raise EvaluationError(f"{where}: cannot create the folder {str(target)!r} ({exc}); pass a writable "
                               "path.") from exc
