@@ -19,6 +19,7 @@ from ..limits import check_depth
 from .markdown import markdown_table
 from .plain import to_plain
 from .safe import code_span, json_text, markdown_text
+from .shape import DIAGNOSTICS_SHAPE, check_shape
 from .tables import CAUTIONS, interval, number, p_text, signed
 from .tables import count as count_text
 from .writing import new_folder
@@ -135,6 +136,8 @@ class RuleDiagnostics:
         except (TypeError, json.JSONDecodeError) as exc:
             raise EvaluationError(f"{_WHERE}.from_json: the text is not valid JSON ({exc}); pass the text "
                                   "written by to_json, e.g. Path('diagnostics.json').read_text().") from exc
+        if isinstance(results, dict):  # anything else gets the constructor's message
+            check_shape(results, DIAGNOSTICS_SHAPE, f"{_WHERE}.from_json")
         return cls(results)
 
     @property

@@ -23,6 +23,7 @@ from ..limits import check_depth
 from .markdown import render_markdown
 from .plain import to_plain
 from .safe import csv_frame, json_text
+from .shape import REPORT_SHAPE, check_shape
 from .tables import LOWER_IS_BETTER, METRIC_LABELS, metric_order, signed, tables
 from .writing import new_folder
 
@@ -329,6 +330,8 @@ class IncrementalValueReport:
                                   ) from exc
         if oof is None:
             oof = pd.DataFrame({c: pd.Series(dtype="float64") for c in _OOF_COLUMNS})
+        if isinstance(results, dict):  # anything else gets the constructor's message
+            check_shape(results, REPORT_SHAPE, "IncrementalValueReport.from_json")
         return cls(results, oof, oof_transfer)
 
     def with_inputs(self, inputs: Mapping[str, Mapping]) -> IncrementalValueReport:
