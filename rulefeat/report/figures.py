@@ -263,7 +263,7 @@ def plot_transfer(transfer: pd.DataFrame, metric: str = "auc") -> Figure:
     if metric == "auc":
         ax.axhline(0.5, color="0.6", linestyle=":", linewidth=1, label="chance")
     _annotate_deltas(ax, transfer, table.index, base, metric)
-    ax.set_xticks(base, [plot_text(p) for p in table.index])
+    ax.set_xticks(base, [plot_text(p, limit=40) for p in table.index])
     ax.set(xlabel="held-out population", ylabel=_label(metric), title=title)
     ax.margins(y=0.12)
     fig.legend(loc="outside lower center", ncols=len(names) + 1, fontsize="small")

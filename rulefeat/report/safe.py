@@ -75,14 +75,15 @@ def fenced(lines, info: str = "text") -> list[str]:
 
 
 def csv_cell(value):
-    """A text cell a spreadsheet shows as text: hidden characters escaped, formula prefixes neutralised.
+    """A text cell a spreadsheet shows as text: hidden characters and carriage returns escaped, formula
+    prefixes neutralised (a line break inside a cell is kept: the CSV writer quotes it).
 
     >>> csv_cell("=HYPERLINK(1)"), csv_cell("-x"), csv_cell("Zorbleth Hill"), csv_cell(3)
     ("'=HYPERLINK(1)", "'-x", 'Zorbleth Hill', 3)
     """
     if not isinstance(value, str):
         return value
-    value = visible(value)
+    value = visible(value).replace("\r", "\\x0d")  # a lone CR is not quoted by the csv module: a row break
     return "'" + value if value.startswith(FORMULA_PREFIXES) else value
 
 
@@ -96,13 +97,16 @@ def csv_frame(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def plot_text(text) -> str:
-    r"""``text`` for a matplotlib label: hidden characters escaped, ``$`` escaped (no math text).
+def plot_text(text, limit: int = 120) -> str:
+    r"""``text`` for a matplotlib label: hidden characters escaped, ``$`` escaped (no math text), cut to
+    ``limit`` characters with "…" (a label longer than that squeezes the plot away; tables keep it whole).
 
-    >>> plot_text("$\\foo$")
-    '\\$\\foo\\$'
+    >>> plot_text("$\\foo$"), plot_text("x" * 200)[-3:]
+    ('\\$\\foo\\$', 'xx…')
     """
-    return visible(str(text), breaks=True).replace("$", r"\$")
+    text = visible(str(text), breaks=True)
+    text = text if len(text) <= limit else text[:limit] + "…"
+    return text.replace("$", r"\$")
 
 
 def json_text(text: str) -> str:
