@@ -85,12 +85,19 @@ def file_record(path) -> dict:
     return {"name": file.name, "sha256": digest.hexdigest(), "bytes": file.stat().st_size}
 
 
+def _is_file(text: str) -> bool:
+    try:
+        return Path(text).is_file()
+    except (OSError, ValueError):  # a name too long for the file system, or a NUL in it: not a file
+        return False
+
+
 def parse_columns(text: str | None) -> dict | None:
     """``--columns``: a JSON object ``{field: column}``, given inline or as the path of a ``.json`` file."""
     if text is None:
         return None
     source = text
-    if not text.lstrip().startswith("{") and Path(text).is_file():
+    if not text.lstrip().startswith("{") and _is_file(text):
         source = Path(text).read_text(encoding="utf-8")
     if nesting_depth(source, "json") > 2:
         raise UsageError("--columns: expected a flat JSON object of field names to column names, e.g. "
