@@ -388,7 +388,7 @@ def test_incremental_value_returns_the_report(sim):
     ({"y": np.zeros(288)}, "single value"),
     ({"task": "classify"}, "'task' parameter of incremental_value must be one of"),
     ({"cv": 1}, "between 2 and 1000 folds"),
-    ({"repeats": 0}, "'repeats' parameter of incremental_value must be an integer >= 1"),
+    ({"repeats": 0}, r"'repeats' parameter of incremental_value must be an integer in \[1, 100\]"),
     ({"n_boot": 0}, "'n_boot' parameter"),
     ({"alternative": "greter"}, "'alternative' parameter.*Did you mean 'greater'"),
     ({"learning_curve": (0, 1.0)}, "'learning_curve' parameter of incremental_value must hold fractions"),
