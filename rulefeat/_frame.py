@@ -103,16 +103,30 @@ def parse_datetimes(series: pd.Series) -> pd.Series:
     """Parse ISO 8601 text; unparseable entries become NaT (the caller reports them).
 
     Entries with and without UTC offsets in one column are parsed to UTC; callers that must not mix
-    them check :func:`offset_mask` first.
+    them use :func:`parse_datetime_text`.
+    """
+    parsed, _ = parse_datetime_text(series)
+    return parsed
+
+
+def parse_datetime_text(series: pd.Series) -> tuple[pd.Series, np.ndarray | None]:
+    """Parse ISO 8601 text, and say whether entries with and without a UTC offset were mixed.
+
+    Returns the parsed column (zone-aware when the text carries offsets, UTC when they differ) and, only when
+    some present entries carry an offset and others do not, the boolean mask of those with one (else None).
+    pandas parses one zone-consistent column in one pass; only a column it refuses is scanned entry by entry.
     """
     text = series.astype("string")
     try:
         parsed = pd.to_datetime(text, format="ISO8601", errors="coerce")
-    except (ValueError, TypeError):
-        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True)
-    if parsed.dtype == object:  # mixed offsets on pandas 2.x
-        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True)
-    return parsed
+        if parsed.dtype != object:
+            return parsed, None
+    except (ValueError, TypeError):  # pandas 3: mixed zones (offsets against none, or several offsets)
+        pass
+    present = ~missing_mask(series)
+    offset = offset_mask(text) & present
+    mixed = offset if offset.any() and (present & ~offset).any() else None
+    return pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True), mixed
 
 
 def to_float(series: pd.Series) -> np.ndarray:

@@ -281,10 +281,13 @@ class EventLog:
         if _frame.is_numeric(series):
             raise UnitError(f"{what}: the log's times are datetimes, so {what} must be datetimes or ISO 8601 "
                             f"text too, not numbers (dtype {series.dtype}).")
-        self._check_zone(series, what)
-        parsed = series if _frame.is_datetime(series) else _frame.parse_datetimes(series)
+        parsed = series if _frame.is_datetime(series) else self._parsed_text(series, what)
         if not _frame.is_datetime(parsed):
             raise UnitError(f"{what}: could not read these values as datetimes (dtype {series.dtype}).")
+        zone, log_zone = ("aware" if _frame.is_zone_aware(parsed) else "naive"), self._settings.get("time_zone")
+        if log_zone is not None and zone != log_zone and len(series.dropna()):
+            raise UnitError(f"{what}: the times are zone-{zone} but the log's are zone-{log_zone}; give both "
+                            "with a UTC offset (e.g. '2026-03-02T09:15:00+01:00') or both without.")
         _refuse_rows(what, _frame.datetimes_out_of_range(parsed), "lie outside the years 1678 to 2261, the "
                      "range of the log's nanosecond times; correct them (a year typed wrong?)", series)
         ns = _frame.datetime_ns(parsed)
@@ -292,21 +295,15 @@ class EventLog:
         out[ns == np.iinfo(np.int64).min] = np.nan
         return out
 
-    def _check_zone(self, series: pd.Series, what: str) -> None:
-        """Naive unit times against a zone-aware log (or the reverse) would be read in a guessed zone."""
-        log_zone = self._settings.get("time_zone")
-        if not _frame.is_datetime(series):
-            present = ~_frame.missing_mask(series)
-            offset = _frame.offset_mask(series) & present
-            if offset.any() and (present & ~offset).any():
-                raise UnitError(f"{what}: {int(offset.sum())} times carry a UTC offset ("
-                                f"{show_rows(np.flatnonzero(offset))}) and {int((present & ~offset).sum())} do "
-                                f"not ({show_rows(np.flatnonzero(present & ~offset))}); write every time "
-                                "with its offset, or none.")
-        zone = parse.time_zone(series)
-        if log_zone is not None and zone is not None and zone != log_zone and len(series.dropna()):
-            raise UnitError(f"{what}: the times are zone-{zone} but the log's are zone-{log_zone}; give both "
-                            "with a UTC offset (e.g. '2026-03-02T09:15:00+01:00') or both without.")
+    @staticmethod
+    def _parsed_text(series: pd.Series, what: str) -> pd.Series:
+        parsed, offset = _frame.parse_datetime_text(series)
+        if offset is not None:
+            naive = ~offset & ~_frame.missing_mask(series)
+            raise UnitError(f"{what}: {int(offset.sum())} times carry a UTC offset "
+                            f"({show_rows(np.flatnonzero(offset))}) and {int(naive.sum())} do not ({show_rows(np.flatnonzero(naive))}); write every time "
+                            "with its offset, or none.")
+        return parsed
 
     # -- grouping shared by rules and features ----------------------------------
     def group_ids(self, scope: str) -> np.ndarray:

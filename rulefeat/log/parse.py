@@ -115,7 +115,8 @@ def parse_student(raw: pd.Series, column: str):
 
 
 def parse_time(raw: pd.Series, column: str, time_unit: str):
-    """Return (seconds relative to origin, origin, kind) with kind 'datetime' or 'number'."""
+    """Return (seconds relative to origin, origin, kind, zone): kind 'datetime' or 'number', zone 'aware',
+    'naive' or None (numbers)."""
     missing = _frame.missing_mask(raw)
     if missing.any():
         raise _fail(column, f"{int(missing.sum())} rows have no time", np.flatnonzero(missing), raw)
@@ -128,10 +129,8 @@ def parse_time(raw: pd.Series, column: str, time_unit: str):
         bad = ~np.isfinite(seconds)
         if bad.any():
             raise _fail(column, "times must be finite numbers", np.flatnonzero(bad), raw)
-        return seconds, 0.0, "number"
-    if not _frame.is_datetime(raw):
-        _check_offsets(raw, column)
-    parsed = raw if _frame.is_datetime(raw) else _frame.parse_datetimes(raw)
+        return seconds, 0.0, "number", None
+    parsed = raw if _frame.is_datetime(raw) else _parsed_text(raw, column)
     if _frame.is_datetime(parsed):
         outside = _frame.datetimes_out_of_range(parsed)
         if outside.any():
@@ -148,24 +147,15 @@ def parse_time(raw: pd.Series, column: str, time_unit: str):
             np.flatnonzero(bad), raw,
         )
     origin = int(ns.min())
-    return (ns - origin).astype(np.float64) / _frame.NS_PER_SECOND, np.datetime64(origin, "ns"), "datetime"
+    zone = "aware" if _frame.is_zone_aware(parsed) else "naive"
+    return (ns - origin).astype(np.float64) / _frame.NS_PER_SECOND, np.datetime64(origin, "ns"), "datetime", zone
 
 
-def time_zone(raw: pd.Series) -> str | None:
-    """``"aware"`` for times with a zone or UTC offset, ``"naive"`` for datetimes without, None for numbers."""
-    if _frame.is_datetime(raw):
-        return "aware" if _frame.is_zone_aware(raw) else "naive"
-    if _frame.is_numeric(raw):
-        return None
-    return "aware" if _frame.offset_mask(raw[~_frame.missing_mask(raw)]).any() else "naive"
-
-
-def _check_offsets(raw: pd.Series, column: str) -> None:
-    """Refuse text times mixing entries with and without a UTC offset: no offset is a guess of the zone."""
-    present = ~_frame.missing_mask(raw)
-    offset = _frame.offset_mask(raw) & present
-    naive = present & ~offset
-    if offset.any() and naive.any():
+def _parsed_text(raw: pd.Series, column: str) -> pd.Series:
+    """ISO text as datetimes; refuse a column mixing entries with and without a UTC offset (a guessed zone)."""
+    parsed, offset = _frame.parse_datetime_text(raw)
+    if offset is not None:
+        naive = ~offset & ~_frame.missing_mask(raw)
         raise LogSchemaError(
             f"EventLog: column {column!r}: {int(offset.sum())} times carry a UTC offset (e.g. "
             f"{show_rows(np.flatnonzero(offset))}) and {int(naive.sum())} do not (e.g. "
@@ -173,6 +163,7 @@ def _check_offsets(raw: pd.Series, column: str) -> None:
             "its offset (e.g. '2026-03-02T09:15:00+01:00'), or convert the column to one zone first "
             "(pd.to_datetime(..., utc=True) if the naive times are UTC)."
         )
+    return parsed
 
 
 def parse_action(raw: pd.Series, column: str, actions: dict | None):
