@@ -471,3 +471,15 @@ def test_features_csv_neutralises_formula_cells(demo, tmp_path, capsys):
     table = pd.read_csv(tmp_path / "f.csv")
     assert (table["student"] == "'=HYPERLINK(\"x\")").sum() == (units["student"] == "=HYPERLINK(\"x\")").sum() > 0
     assert table.select_dtypes("number").shape[1] > 2  # the features stay numbers
+
+
+def test_report_names_the_file_of_a_damaged_report(tmp_path, capsys):
+    deep = tmp_path / "report.json"
+    deep.write_text("[" * 50_000 + "]" * 50_000, encoding="utf-8")
+    done = rulefeat_main(capsys, "report", deep, "--json", check_code=1)
+    assert done.stderr.strip().splitlines() == [
+        f"rulefeat report: error: {str(deep)!r}: IncrementalValueReport.from_json: the JSON text nests 50000 levels of "
+        "[ ] / { }, more than the limit of 64 (rulefeat.limits.MAX_JSON_DEPTH); flatten it."]
+    deep.write_text(json.dumps({"task": "classification", "rules": [{"name": 3}]}), encoding="utf-8")
+    done = rulefeat_main(capsys, "report", deep, "--json", check_code=1)
+    assert "results['rules'][0]['name'] must be a string; got int 3." in done.stderr
