@@ -281,3 +281,47 @@ def test_inputs_are_file_names_and_hashes_only(base):
     assert json.loads(report.to_json())["reproducibility"]["inputs"] == {"events": record}
     with pytest.raises(EvaluationError, match=r"inputs\['events'\] must be a dict with a file 'name' \(no folders"):
         base.with_inputs({"events": {"name": "/srv/data/events.csv", "sha256": "0" * 64}})
+
+
+# -- diagnostics: the same rules for their Markdown, HTML and JSON ----------------------------------------------
+@pytest.fixture(scope="module")
+def diagnostics() -> RuleDiagnostics:
+    data = tutor_logs(n_students=30, seed=1, windows_per_student=3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        log = rulefeat.EventLog(data.events)
+    rules = [rulefeat.Rule("skim", when="action == 'hint' and gap < 3s")]
+    units = data.windows[["student", "start", "end", "label", "population"]]
+    return rulefeat.diagnose(log, units, "label", rules, cv=3, population="population", outcomes=data.outcomes,
+                             shap_sample=0, n_boot=20, n_jobs=1, random_state=0, mined={"families": ["correctness"]})
+
+
+def hostile_diagnostics(diagnostics: RuleDiagnostics, text: str) -> RuleDiagnostics:
+    results = diagnostics.to_dict()
+    for i, row in enumerate(results["per_population"]):
+        row["population"] = f"{text}{i}"
+    results["rules"][0].update(means=text, why=text)
+    results["notes"].append(text)
+    results["settings"]["model"] = text
+    return RuleDiagnostics.from_json(json.dumps(results))
+
+
+@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(text=HOSTILE)
+def test_hostile_text_in_diagnostics_markdown_and_json(diagnostics, text):
+    diag = hostile_diagnostics(diagnostics, text)
+    markdown = diag.to_markdown()
+    prose = CODE_SPAN.sub("", markdown)
+    assert not LIVE_TAG.search(prose) and not LIVE_LINK.search(prose) and not HIDDEN.search(markdown)
+    for line in markdown.split("\n"):
+        if line.startswith("|"):
+            header = next(h for h in markdown.split("\n") if h.startswith("| rule |"))
+            assert len(PIPE.findall(line)) in {len(PIPE.findall(h)) for h in markdown.split("\n")
+                                               if h.startswith("| rule |")}, (line[:120], header[:120])
+    assert not HIDDEN.search(diag.to_json()) and RuleDiagnostics.from_json(diag.to_json()).to_dict() == diag.to_dict()
+
+
+def test_every_hostile_piece_at_once_in_the_diagnostics_section_of_the_page(base, diagnostics):
+    page = render_html(html_view(base, hostile_diagnostics(diagnostics, EVERY)))
+    check_html(page)
+    assert "&lt;script&gt;" in page
