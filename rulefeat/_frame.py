@@ -94,19 +94,10 @@ def datetime_ns(series: pd.Series) -> np.ndarray:
 
 
 def offset_mask(series: pd.Series) -> np.ndarray:
-    """Which entries of a text column of ISO 8601 times carry a UTC offset (``Z``, ``+02:00``)."""
+    """Which entries of a text column of ISO 8601 times carry a UTC offset (``Z``, ``+02:00``); a regex scan,
+    so :func:`parse_datetime_text` runs it only on a column pandas refuses to parse in one zone."""
     text = series.astype("string").str.strip()
     return text.str.contains(_OFFSET, regex=True).fillna(False).to_numpy(dtype=bool)
-
-
-def parse_datetimes(series: pd.Series) -> pd.Series:
-    """Parse ISO 8601 text; unparseable entries become NaT (the caller reports them).
-
-    Entries with and without UTC offsets in one column are parsed to UTC; callers that must not mix
-    them use :func:`parse_datetime_text`.
-    """
-    parsed, _ = parse_datetime_text(series)
-    return parsed
 
 
 def parse_datetime_text(series: pd.Series) -> tuple[pd.Series, np.ndarray | None]:
