@@ -57,23 +57,67 @@ def missing_mask(series: pd.Series) -> np.ndarray:
     return np.asarray(series.isna().to_numpy(), dtype=bool)
 
 
-def datetime_ns(series: pd.Series) -> np.ndarray:
-    """Nanoseconds since the epoch as int64 (UTC for zone-aware input); NaT stays the int64 minimum."""
+# an offset after a time of day ("T09:15:00+02:00", "09:15Z"), not the day of a date ("2026-03-02")
+_OFFSET = r"[T\s]\d{2}(?::?\d{2}){0,2}(?:[.,]\d+)?\s*(?:[zZ]|[+-]\d{2}(?::?\d{2})?)\s*$"
+
+
+def _utc_naive(series: pd.Series) -> pd.Series:
     if getattr(series.dt, "tz", None) is not None:
-        series = series.dt.tz_convert("UTC").dt.tz_localize(None)
+        return series.dt.tz_convert("UTC").dt.tz_localize(None)
+    return series
+
+
+def is_zone_aware(series: pd.Series) -> bool:
+    """Whether a datetime column carries a time zone."""
+    return getattr(series.dt, "tz", None) is not None
+
+
+def datetimes_out_of_range(series: pd.Series) -> np.ndarray:
+    """Rows of a datetime column outside what int64 nanoseconds hold (about the years 1678 to 2261)."""
+    values = _utc_naive(series).to_numpy()
+    if values.dtype == np.dtype("datetime64[ns]"):
+        return np.zeros(len(values), dtype=bool)
+    per_unit = int(np.timedelta64(1, np.datetime_data(values.dtype)[0]) // np.timedelta64(1, "ns"))
+    limit = np.iinfo(np.int64).max // per_unit  # whole units that fit, both signs (NaT is the int64 minimum)
+    raw = values.view("int64")
+    return ~np.isnat(values) & ((raw < -limit) | (raw > limit))
+
+
+def datetime_ns(series: pd.Series) -> np.ndarray:
+    """Nanoseconds since the epoch as int64 (UTC for zone-aware input); NaT and times outside the
+    nanosecond range (see :func:`datetimes_out_of_range`) become the int64 minimum."""
+    series = _utc_naive(series)
+    out_of_range = datetimes_out_of_range(series)
+    if out_of_range.any():
+        series = series.where(~out_of_range)
     return series.astype("datetime64[ns]").to_numpy().view("int64")
 
 
-def parse_datetimes(series: pd.Series) -> pd.Series:
-    """Parse ISO 8601 text; unparseable entries become NaT (the caller reports them)."""
+def offset_mask(series: pd.Series) -> np.ndarray:
+    """Which entries of a text column of ISO 8601 times carry a UTC offset (``Z``, ``+02:00``); a regex scan,
+    so :func:`parse_datetime_text` runs it only on a column pandas refuses to parse in one zone."""
+    text = series.astype("string").str.strip()
+    return text.str.contains(_OFFSET, regex=True).fillna(False).to_numpy(dtype=bool)
+
+
+def parse_datetime_text(series: pd.Series) -> tuple[pd.Series, np.ndarray | None]:
+    """Parse ISO 8601 text, and say whether entries with and without a UTC offset were mixed.
+
+    Returns the parsed column (zone-aware when the text carries offsets, UTC when they differ) and, only when
+    some present entries carry an offset and others do not, the boolean mask of those with one (else None).
+    pandas parses one zone-consistent column in one pass; only a column it refuses is scanned entry by entry.
+    """
     text = series.astype("string")
     try:
         parsed = pd.to_datetime(text, format="ISO8601", errors="coerce")
-    except (ValueError, TypeError):
-        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True)
-    if parsed.dtype == object:  # mixed offsets on pandas 2.x
-        parsed = pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True)
-    return parsed
+        if parsed.dtype != object:
+            return parsed, None
+    except (ValueError, TypeError):  # pandas 3: mixed zones (offsets against none, or several offsets)
+        pass
+    present = ~missing_mask(series)
+    offset = offset_mask(text) & present
+    mixed = offset if offset.any() and (present & ~offset).any() else None
+    return pd.to_datetime(text, format="ISO8601", errors="coerce", utc=True), mixed
 
 
 def to_float(series: pd.Series) -> np.ndarray:

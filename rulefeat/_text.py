@@ -1,8 +1,9 @@
-"""Small text helpers shared by error messages: did-you-mean and row listings."""
+"""Small text helpers shared by error messages and reports: did-you-mean, row listings, hidden characters."""
 
 from __future__ import annotations
 
 import difflib
+import re
 from collections.abc import Iterable, Sequence
 
 # difflib compares the name with every option; past this many options only a bounded set of
@@ -69,3 +70,32 @@ def show_rows(rows: Sequence[int], limit: int = 5) -> str:
     more = f" (and {total - limit} more)" if total > limit else ""
     word = "row" if total == 1 else "rows"
     return f"{word} {head}{more}"
+
+
+# Characters that change how text looks without showing themselves: C0/C1 controls (NUL included) and DEL,
+# the bidirectional embeddings, overrides, isolates and marks, and the Unicode line / paragraph separators.
+HIDDEN = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029"
+                    "\u202a-\u202e\u2066-\u2069]")
+_HIDDEN_OR_BREAK = re.compile(HIDDEN.pattern[:-1] + "\t\n\r]")
+
+
+def _escape(match: re.Match) -> str:
+    code = ord(match.group())
+    return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}"
+
+
+def visible(text: str, *, breaks: bool = False) -> str:
+    r"""``text`` with every hidden character written as its escape (``\u202e``, ``\x00``), so it shows.
+
+    Tabs and line breaks are kept unless ``breaks`` is true (then they are escaped too).
+
+    >>> print(visible("abc\u202edef\x00"))
+    abc\u202edef\x00
+    """
+    return (_HIDDEN_OR_BREAK if breaks else HIDDEN).sub(_escape, str(text))
+
+
+def first_hidden(text: str) -> tuple[int, str] | None:
+    """Position and escape of the first hidden character of ``text``, or None."""
+    found = HIDDEN.search(text)
+    return None if found is None else (found.start(), _escape(found))

@@ -14,8 +14,9 @@ import time
 import warnings
 from pathlib import Path
 
+from ..report.writing import new_folder
 from .base import EXIT_OK, EXIT_PROBLEMS, Command, Progress, UsageError, print_json
-from .files import add_log_options, demo_rules_file, existing_file, read_log, read_table
+from .files import add_log_options, demo_rules_file, existing_file, file_record, read_log, read_table
 
 EXAMPLES = """\
 examples:
@@ -51,6 +52,8 @@ def add_arguments(p) -> None:
     ev.add_argument("--no-diagnose", action="store_true", help="skip the per-rule validity diagnostics and SHAP")
     ev.add_argument("--out", default="incremental_value_report", help="report folder (default "
                                                                       "incremental_value_report)")
+    ev.add_argument("--overwrite", action="store_true", help="replace --out when it exists and is not empty "
+                                                             "(checked before the evaluation starts)")
     own = p.add_argument_group("your own data")
     add_log_options(own, required=False)
     own.add_argument("--units", "--labels", dest="units", metavar="FILE",
@@ -77,6 +80,25 @@ def settle(args) -> None:
     if args.events is None and (args.columns or args.xapi_mapping or args.outcomes):
         raise UsageError("--columns, --xapi-mapping and --outcomes apply to your own data; give --events and "
                          "--units too")
+    out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise UsageError(f"--out: {args.out!r} is a file; give a folder for the report")
+    if out.is_dir() and any(out.iterdir()) and not args.overwrite:
+        raise UsageError(f"--out: the folder {args.out!r} exists and is not empty; pass --overwrite to replace "
+                         "it, or choose another --out")
+
+
+def inputs(args, rules: Path) -> dict:
+    """The input files as names and content hashes for report.json (never the folders they sit in)."""
+    files = {"events": args.events, "units": args.units, "rules": rules, "outcomes": args.outcomes,
+             "xapi_mapping": args.xapi_mapping}
+    if args.columns and not args.columns.lstrip().startswith("{"):
+        files["columns"] = args.columns
+    out = {role: file_record(path) for role, path in files.items() if path is not None}
+    if args.events is None:
+        out["events"] = {"name": "simulated", "sha256": None, "students": args.students,
+                         "windows_per_student": args.windows, "seed": args.seed}
+    return out
 
 
 def load(args, clock: dict, progress: Progress):
@@ -145,13 +167,21 @@ def rules_check(rules: Path, log) -> bool:
 
 
 def command_line() -> str:
-    """How this run was started, for the report's reproducibility block."""
+    """How this run was started, for the report's reproducibility block; paths cut to their names."""
     first = Path(sys.argv[0]).name
     if first == "__main__.py":
         head = ["python", "-m", "rulefeat"]
     else:
-        head = ["python", sys.argv[0]] if first.endswith(".py") else ["rulefeat"]
-    return shlex.join([*head, *sys.argv[1:]])
+        head = ["python", first] if first.endswith(".py") else ["rulefeat"]
+    return shlex.join([*head, *(_name_only(word) for word in sys.argv[1:])])
+
+
+def _name_only(word: str) -> str:
+    """A command-line word naming a path, as the path's last part (``--out=/x/y`` -> ``--out=y``)."""
+    option, eq, value = word.partition("=") if word.startswith("--") else ("", "", word)
+    if value.lstrip().startswith("{") or not ("/" in value or "\\" in value):
+        return word
+    return f"{option}{eq}{Path(value).name}"
 
 
 def run(args, *, command: str | None = None) -> int:
@@ -194,10 +224,13 @@ def run(args, *, command: str | None = None) -> int:
         clock["diagnose (incl. SHAP)"] = time.perf_counter() - t1
     t1 = time.perf_counter()
     progress.say(f"writing the reports to {args.out}/")
-    folder = report.save(args.out)
-    html = report.save_html(Path(folder) / "report.html", diagnostics=diagnostics)
-    if diagnostics is not None:
-        diagnostics.save(Path(folder) / "diagnostics")
+    report = report.with_inputs(inputs(args, rules))
+    with new_folder(args.out, overwrite=args.overwrite, where="rulefeat evaluate") as work:
+        report.save(work)  # the empty work folder: everything lands in --out at once, or nothing does
+        report.save_html(work / "report.html", diagnostics=diagnostics)
+        if diagnostics is not None:
+            diagnostics.save(work / "diagnostics")
+    folder, html = Path(args.out), Path(args.out) / "report.html"
     clock["write the reports"] = time.perf_counter() - t1
     clock["total"] = time.perf_counter() - start
     if args.json:

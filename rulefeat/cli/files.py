@@ -2,15 +2,18 @@
 
 from __future__ import annotations
 
+import hashlib
 import json
 from pathlib import Path
 
 import pandas as pd
 
+from ..limits import nesting_depth
+from ..report.safe import csv_frame
 from .base import UsageError
 
 __all__ = ["TABLE_SUFFIXES", "XAPI_SUFFIXES", "demo_rules_file", "read_table", "write_table", "parse_columns", "read_log",
-           "existing_file"]
+           "existing_file", "file_record"]
 
 TABLE_SUFFIXES = {".csv": "csv", ".txt": "csv", ".tsv": "tsv", ".parquet": "parquet", ".pq": "parquet"}
 XAPI_SUFFIXES = (".json", ".jsonl", ".ndjson")
@@ -62,11 +65,31 @@ def write_table(frame: pd.DataFrame, path: str, option: str = "--out", *, index:
         file.parent.mkdir(parents=True, exist_ok=True)
         if fmt == "parquet":
             frame.to_parquet(file, index=index)
-        else:
-            frame.to_csv(file, sep="\t" if fmt == "tsv" else ",", index=index)
+        else:  # text cells a spreadsheet would run as formulas are neutralised (report/safe.py)
+            csv_frame(frame).to_csv(file, sep="\t" if fmt == "tsv" else ",", index=index)
     except OSError as exc:
         raise UsageError(f"{option}: cannot write {str(file)!r}: {exc.strerror or exc}") from None
     return file
+
+
+def file_record(path) -> dict:
+    """What a report keeps of an input file: its name (no folders), SHA-256 of its bytes and its size."""
+    file = Path(path)
+    digest = hashlib.sha256()
+    try:
+        with file.open("rb") as handle:
+            for block in iter(lambda: handle.read(1 << 20), b""):
+                digest.update(block)
+    except OSError as exc:
+        raise UsageError(f"cannot read {str(file)!r} to record it: {exc.strerror or exc}") from None
+    return {"name": file.name, "sha256": digest.hexdigest(), "bytes": file.stat().st_size}
+
+
+def _is_file(text: str) -> bool:
+    try:
+        return Path(text).is_file()
+    except (OSError, ValueError):  # a name too long for the file system, or a NUL in it: not a file
+        return False
 
 
 def parse_columns(text: str | None) -> dict | None:
@@ -74,8 +97,11 @@ def parse_columns(text: str | None) -> dict | None:
     if text is None:
         return None
     source = text
-    if not text.lstrip().startswith("{") and Path(text).is_file():
+    if not text.lstrip().startswith("{") and _is_file(text):
         source = Path(text).read_text(encoding="utf-8")
+    if nesting_depth(source, "json") > 2:
+        raise UsageError("--columns: expected a flat JSON object of field names to column names, e.g. "
+                         """'{"student": "learner_id", "time": "timestamp"}'""")
     try:
         value = json.loads(source)
     except json.JSONDecodeError as exc:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..report.writing import write_file
 from .base import EXIT_OK, Command, Progress, UsageError, print_json
 from .files import existing_file, read_table
 
@@ -39,14 +40,15 @@ def run(args) -> int:
     progress = Progress.for_args("report", args)
     source = existing_file(args.report, "REPORT.json")
     oof, oof_transfer = _beside(source, "oof.csv"), _beside(source, "oof_transfer.csv")
-    report = IncrementalValueReport.from_json(_text(source, "REPORT.json"), oof=oof, oof_transfer=oof_transfer)
+    report = _named(source, lambda: IncrementalValueReport.from_json(_text(source, "REPORT.json"), oof=oof,
+                                                                     oof_transfer=oof_transfer))
     diagnostics = _diagnostics(args, source)
     written = {}
     if args.html:
         progress.say(f"rendering {args.html}")
         written["html"] = str(report.save_html(args.html, diagnostics=diagnostics))
     if args.markdown:
-        Path(args.markdown).write_text(report.to_markdown(), encoding="utf-8")
+        write_file(args.markdown, report.to_markdown(), where="rulefeat report --markdown")
         written["markdown"] = args.markdown
     if args.json:
         print_json({"report": str(source), "headline": headline(report), "written": written,
@@ -92,7 +94,17 @@ def _diagnostics(args, source: Path):
         file = source.parent / "diagnostics" / "diagnostics.json"
         if not file.is_file():
             return None
-    return RuleDiagnostics.from_json(_text(file, "--diagnostics"))
+    return _named(file, lambda: RuleDiagnostics.from_json(_text(file, "--diagnostics")))
+
+
+def _named(path: Path, load):
+    """``load()``, with the file named in the library's error (from_json sees only the text)."""
+    from ..errors import RulefeatError
+
+    try:
+        return load()
+    except RulefeatError as exc:
+        raise type(exc)(f"{str(path)!r}: {exc}") from None
 
 
 COMMAND = Command(help="re-render a saved evaluation report as HTML or Markdown", examples=EXAMPLES,

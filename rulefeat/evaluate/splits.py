@@ -21,6 +21,7 @@ from sklearn.model_selection import (
 )
 
 from ..errors import EvaluationError
+from ..limits import MAX_FOLDS
 
 __all__ = ["Fold", "GROUP_AWARE", "check_splitter", "repeat_seeds", "student_folds", "population_folds",
            "assert_grouped", "fold_size_ratio"]
@@ -51,8 +52,9 @@ class Fold:
 def check_splitter(cv, where: str = "incremental_value"):
     """Return ``cv`` if it is an int >= 2 or a group-aware scikit-learn splitter; raise otherwise."""
     if isinstance(cv, (int, np.integer)) and not isinstance(cv, bool):
-        if cv < 2:
-            raise EvaluationError(f"The 'cv' parameter of {where} must be at least 2 folds. Got {cv!r} instead.")
+        if not 2 <= cv <= MAX_FOLDS:
+            raise EvaluationError(f"The 'cv' parameter of {where} must be between 2 and {MAX_FOLDS} folds "
+                                  f"(rulefeat.limits.MAX_FOLDS). Got {cv!r} instead.")
         return int(cv)
     if isinstance(cv, GROUP_AWARE):
         return cv

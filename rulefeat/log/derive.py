@@ -59,9 +59,10 @@ def _parse_fields(data, mapping, out: Built, time_unit, correct_values, actions)
     col = mapping.__getitem__
     codes, cats = parse.parse_student(data[col("student")], col("student"))
     out.put("student", codes, "category", cats)
-    seconds, origin, kind = parse.parse_time(data[col("time")], col("time"), time_unit)
+    seconds, origin, kind, zone = parse.parse_time(data[col("time")], col("time"), time_unit)
     out.put("time", seconds, "number")
     out.time_origin, out.time_kind = origin, kind
+    out.settings["time_zone"] = zone
     codes, cats, unknown = parse.parse_action(data[col("action")], col("action"), actions)
     out.put("action", codes, "category", cats)
     out.flag("actions of a kind other than 'attempt' or 'hint'", np.flatnonzero(unknown), "kept")

@@ -11,9 +11,9 @@ import numpy as np
 import pandas as pd
 
 from .. import _frame
-from .._text import did_you_mean
+from .._text import did_you_mean, show_rows
 from ..errors import LogRepairWarning, LogSchemaError, UnitError
-from . import derive
+from . import derive, parse
 from .parse import DERIVED, LogIssue
 
 __all__ = ["EventLog", "LogIssue", "read_events"]
@@ -81,6 +81,8 @@ class EventLog:
                  correct_values=None, actions: dict | None = None, session_gap: float = 1800.0,
                  duration_cap: float = 600.0, duplicates: str = "keep"):
         _check_options(session_gap, duration_cap, duplicates)
+        parse.check_mappings(columns, actions)
+        parse.check_correct_values(correct_values)
         data = _frame.as_pandas(data)
         built = derive.build(data, columns=columns, time_unit=time_unit, correct_values=correct_values,
                              actions=actions, session_gap=float(session_gap),
@@ -262,23 +264,46 @@ class EventLog:
         return codes
 
     def to_seconds(self, values, *, what: str = "time") -> np.ndarray:
-        """Convert datetimes / ISO text / numbers to the log's time axis (seconds from its origin)."""
+        """Convert datetimes / ISO text / numbers to the log's time axis (seconds from its origin).
+
+        Missing values become NaN; infinite numbers, datetimes outside the nanosecond range and times
+        whose zone does not match the log's (naive against zone-aware) are refused with a
+        :class:`UnitError` naming the rows.
+        """
         series = pd.Series(values).reset_index(drop=True)
         if self._time_kind == "number":
             if not _frame.is_numeric(series):
                 raise UnitError(f"{what}: the log's times are numbers of seconds, so {what} must be numbers "
                                 f"too. Got dtype {series.dtype}.")
-            return _frame.to_float(series) * _frame.TIME_UNITS[self._settings["time_unit"]]
+            out = _frame.to_float(series) * _frame.TIME_UNITS[self._settings["time_unit"]]
+            _refuse_rows(what, np.isinf(out), "are infinite; give finite times", series)
+            return out
         if _frame.is_numeric(series):
             raise UnitError(f"{what}: the log's times are datetimes, so {what} must be datetimes or ISO 8601 "
                             f"text too, not numbers (dtype {series.dtype}).")
-        parsed = series if _frame.is_datetime(series) else _frame.parse_datetimes(series)
+        parsed = series if _frame.is_datetime(series) else self._parsed_text(series, what)
         if not _frame.is_datetime(parsed):
             raise UnitError(f"{what}: could not read these values as datetimes (dtype {series.dtype}).")
+        zone, log_zone = ("aware" if _frame.is_zone_aware(parsed) else "naive"), self._settings.get("time_zone")
+        if log_zone is not None and zone != log_zone and len(series.dropna()):
+            raise UnitError(f"{what}: the times are zone-{zone} but the log's are zone-{log_zone}; give both "
+                            "with a UTC offset (e.g. '2026-03-02T09:15:00+01:00') or both without.")
+        _refuse_rows(what, _frame.datetimes_out_of_range(parsed), "lie outside the years 1678 to 2261, the "
+                     "range of the log's nanosecond times; correct them (a year typed wrong?)", series)
         ns = _frame.datetime_ns(parsed)
         out = (ns - self._time_origin.astype(np.int64)).astype(np.float64) / _frame.NS_PER_SECOND
         out[ns == np.iinfo(np.int64).min] = np.nan
         return out
+
+    @staticmethod
+    def _parsed_text(series: pd.Series, what: str) -> pd.Series:
+        parsed, offset = _frame.parse_datetime_text(series)
+        if offset is not None:
+            naive = ~offset & ~_frame.missing_mask(series)
+            raise UnitError(f"{what}: {int(offset.sum())} times carry a UTC offset "
+                            f"({show_rows(np.flatnonzero(offset))}) and {int(naive.sum())} do not ({show_rows(np.flatnonzero(naive))}); write every time "
+                            "with its offset, or none.")
+        return parsed
 
     # -- grouping shared by rules and features ----------------------------------
     def group_ids(self, scope: str) -> np.ndarray:
@@ -358,6 +383,13 @@ class EventLog:
         new._cache = {}
         new._student_bounds = derive.bounds(new._fields["student"], len(self._categories["student"]))
         return new
+
+
+def _refuse_rows(what: str, bad: np.ndarray, problem: str, series: pd.Series) -> None:
+    if bad.any():
+        rows = np.flatnonzero(bad)
+        shown = ", ".join(f"row {r}: {series.iloc[r]!r}" for r in rows[:5])
+        raise UnitError(f"{what}: {int(bad.sum())} values {problem}. First offending rows: {shown}.")
 
 
 def _check_options(session_gap, duration_cap, duplicates) -> None:

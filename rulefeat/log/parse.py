@@ -7,6 +7,7 @@ reported, not raised) are returned to the caller as :class:`LogIssue` objects.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -14,7 +15,7 @@ import pandas as pd
 
 from .. import _frame
 from .._text import did_you_mean, show_rows
-from ..errors import LogSchemaError
+from ..errors import LogSchemaError, ParameterError
 
 CANONICAL = (
     "student", "time", "action", "correct", "problem", "step", "skill",
@@ -114,7 +115,8 @@ def parse_student(raw: pd.Series, column: str):
 
 
 def parse_time(raw: pd.Series, column: str, time_unit: str):
-    """Return (seconds relative to origin, origin, kind) with kind 'datetime' or 'number'."""
+    """Return (seconds relative to origin, origin, kind, zone): kind 'datetime' or 'number', zone 'aware',
+    'naive' or None (numbers)."""
     missing = _frame.missing_mask(raw)
     if missing.any():
         raise _fail(column, f"{int(missing.sum())} rows have no time", np.flatnonzero(missing), raw)
@@ -127,8 +129,14 @@ def parse_time(raw: pd.Series, column: str, time_unit: str):
         bad = ~np.isfinite(seconds)
         if bad.any():
             raise _fail(column, "times must be finite numbers", np.flatnonzero(bad), raw)
-        return seconds, 0.0, "number"
-    parsed = raw if _frame.is_datetime(raw) else _frame.parse_datetimes(raw)
+        return seconds, 0.0, "number", None
+    parsed = raw if _frame.is_datetime(raw) else _parsed_text(raw, column)
+    if _frame.is_datetime(parsed):
+        outside = _frame.datetimes_out_of_range(parsed)
+        if outside.any():
+            raise _fail(column, f"{int(outside.sum())} times lie outside the years 1678 to 2261, the range of "
+                        "nanosecond times; correct them (a year typed wrong?) or drop those rows",
+                        np.flatnonzero(outside), raw)
     ns = _frame.datetime_ns(parsed)
     bad = ns == np.iinfo(np.int64).min
     if bad.any():
@@ -139,7 +147,23 @@ def parse_time(raw: pd.Series, column: str, time_unit: str):
             np.flatnonzero(bad), raw,
         )
     origin = int(ns.min())
-    return (ns - origin).astype(np.float64) / _frame.NS_PER_SECOND, np.datetime64(origin, "ns"), "datetime"
+    zone = "aware" if _frame.is_zone_aware(parsed) else "naive"
+    return (ns - origin).astype(np.float64) / _frame.NS_PER_SECOND, np.datetime64(origin, "ns"), "datetime", zone
+
+
+def _parsed_text(raw: pd.Series, column: str) -> pd.Series:
+    """ISO text as datetimes; refuse a column mixing entries with and without a UTC offset (a guessed zone)."""
+    parsed, offset = _frame.parse_datetime_text(raw)
+    if offset is not None:
+        naive = ~offset & ~_frame.missing_mask(raw)
+        raise LogSchemaError(
+            f"EventLog: column {column!r}: {int(offset.sum())} times carry a UTC offset (e.g. "
+            f"{show_rows(np.flatnonzero(offset))}) and {int(naive.sum())} do not (e.g. "
+            f"{show_rows(np.flatnonzero(naive))}); the zone of the latter is unknown. Write every time with "
+            "its offset (e.g. '2026-03-02T09:15:00+01:00'), or convert the column to one zone first "
+            "(pd.to_datetime(..., utc=True) if the naive times are UTC)."
+        )
+    return parsed
 
 
 def parse_action(raw: pd.Series, column: str, actions: dict | None):
@@ -168,7 +192,7 @@ def parse_correct(raw: pd.Series, column: str, correct_values):
     out = np.full(len(raw), -1, dtype=np.int8)
     present = ~missing
     if correct_values is not None:
-        yes, no = _pair(correct_values)
+        yes, no = correct_values  # checked by EventLog (check_correct_values)
         text = raw.astype("string")
         is_yes = (text == str(yes)).fillna(False).to_numpy(bool)
         is_no = (text == str(no)).fillna(False).to_numpy(bool)
@@ -201,14 +225,29 @@ def parse_correct(raw: pd.Series, column: str, correct_values):
     return out
 
 
-def _pair(correct_values):
-    try:
-        yes, no = correct_values
-    except (TypeError, ValueError):
-        raise LogSchemaError(
-            f"EventLog: correct_values must be a pair (<correct value>, <wrong value>). Got {correct_values!r}."
-        ) from None
-    return yes, no
+def check_correct_values(correct_values) -> None:
+    """``correct_values`` is None or a pair of two different codes (compared as text, as the column is)."""
+    if correct_values is None:
+        return
+    pair = isinstance(correct_values, (tuple, list)) and len(correct_values) == 2
+    if not pair:
+        raise ParameterError(f"The 'correct_values' parameter of EventLog must be a pair (<correct value>, "
+                             f"<wrong value>), e.g. ('RIGHT', 'WRONG'). Got {correct_values!r} instead.")
+    yes, no = correct_values
+    if str(yes) == str(no):
+        raise ParameterError(f"The 'correct_values' parameter of EventLog must hold two different codes; both "
+                             f"are {str(yes)!r}, so no attempt could be told wrong from right. Got "
+                             f"{correct_values!r} instead.")
+
+
+def check_mappings(columns, actions) -> None:
+    """``columns`` and ``actions`` are mappings (or None): a list would lose which field each column is."""
+    examples = {"columns": "{'student': 'learner_id', 'time': 'timestamp'}",
+                "actions": "{'hint': ['HINT_REQUEST', 'HINT_SHOWN']}"}
+    for name, value in (("columns", columns), ("actions", actions)):
+        if value is not None and not isinstance(value, Mapping):
+            raise ParameterError(f"The {name!r} parameter of EventLog must be None or a mapping, e.g. "
+                                 f"{examples[name]}. Got {value!r} instead.")
 
 
 def parse_duration(raw: pd.Series, column: str):
@@ -216,6 +255,10 @@ def parse_duration(raw: pd.Series, column: str):
     bad_text = ~_frame.missing_mask(raw) & np.isnan(seconds)
     if bad_text.any():
         raise _fail(column, "durations must be numbers of seconds", np.flatnonzero(bad_text), raw)
+    infinite = np.isinf(seconds)
+    if infinite.any():
+        raise _fail(column, f"{int(infinite.sum())} durations are infinite; durations are finite seconds >= 0 "
+                    "(leave unknown ones empty)", np.flatnonzero(infinite), raw)
     neg = seconds < 0
     if neg.any():
         raise _fail(column, f"{int(neg.sum())} durations are negative; durations are seconds >= 0",

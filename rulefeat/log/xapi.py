@@ -40,6 +40,7 @@ import pandas as pd
 
 from .._text import did_you_mean
 from ..errors import LogRepairWarning, LogSchemaError
+from ..limits import check_depth
 from .eventlog import EventLog
 
 try:
@@ -117,6 +118,7 @@ class XapiMapping:
     def from_toml(cls, source, *, defaults: bool = True) -> XapiMapping:
         """A mapping from a TOML file or text; tables it leaves out keep the default mapping's values."""
         text = _mapping_text(source)
+        check_depth(text, "toml", "XapiMapping.from_toml", LogSchemaError)
         try:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
@@ -356,6 +358,7 @@ def _parse_text(text: str, where: str) -> list:
     stripped = text.lstrip()
     if not stripped:
         raise LogSchemaError(f"read_xapi: {where} is empty; there are no statements to read.")
+    check_depth(text, "json", f"read_xapi: {where}", LogSchemaError)
     try:
         return _unwrap(json.loads(text), where)
     except json.JSONDecodeError as whole:

@@ -9,6 +9,7 @@ from matplotlib.figure import Figure
 
 from .. import _frame
 from ..evaluate.diagnose.attribution import dependence_data
+from .safe import plot_text
 
 __all__ = ["plot_shap_share", "plot_shap_per_rule", "plot_dependence", "plot_dependence_of"]
 
@@ -43,7 +44,7 @@ def plot_shap_per_rule(shap: dict) -> Figure:
     fig, ax = _figure(6.0, 1.2 + 0.35 * max(len(rows), 1))
     positions = np.arange(len(rows))
     ax.barh(positions, [r["mean_abs"] for r in rows], color=_RULES)
-    ax.set_yticks(positions, [r["rule"] for r in rows])
+    ax.set_yticks(positions, [plot_text(r["rule"]) for r in rows])
     if shap.get("mined"):
         ax.axvline(shap["mined"]["mean_abs"], color=_MINED, linestyle="--",
                    label=f"all mined features: {shap['mined']['mean_abs']:.3f}")
@@ -55,7 +56,7 @@ def plot_shap_per_rule(shap: dict) -> Figure:
 def plot_dependence_of(values: pd.DataFrame, features: pd.DataFrame, column: str, rule: str) -> Figure:
     """SHAP value of a rule's unit value against the value itself."""
     fig = plot_dependence(values, features, column)
-    fig.axes[0].set_title(f"{rule}: SHAP of {column} by its value")
+    fig.axes[0].set_title(plot_text(f"{rule}: SHAP of {column} by its value"))
     return fig
 
 
@@ -80,10 +81,10 @@ def plot_dependence(values: pd.DataFrame, X: pd.DataFrame, feature: str, *, jitt
         codes, labels = _frame.factorize_values(shown["value"], sort=True)
         spread = np.random.default_rng(random_state).uniform(-jitter, jitter, len(codes))
         ax.scatter(codes + spread, shown["shap"], s=10, alpha=0.6, color="#4c72b0")
-        ax.set_xticks(range(len(labels)), [str(v) for v in labels])
+        ax.set_xticks(range(len(labels)), [plot_text(v) for v in labels])
     ax.axhline(0.0, color="grey", linewidth=0.8)
-    ax.set_xlabel(str(feature))
+    ax.set_xlabel(plot_text(feature))
     ax.set_ylabel("SHAP value")
     note = f" ({int((~known).sum())} missing not shown)" if (~known).any() else ""
-    ax.set_title(f"Dependence of the model on {feature}{note}")
+    ax.set_title(plot_text(f"Dependence of the model on {feature}{note}"))
     return fig

@@ -15,10 +15,14 @@ import numpy as np
 import pandas as pd
 
 from ..errors import EvaluationError
+from ..limits import check_depth
 from .markdown import markdown_table
 from .plain import to_plain
+from .safe import code_span, json_text, markdown_text
+from .shape import DIAGNOSTICS_SHAPE, check_shape
 from .tables import CAUTIONS, interval, number, p_text, signed
 from .tables import count as count_text
+from .writing import new_folder
 
 __all__ = ["RuleDiagnostics"]
 
@@ -119,16 +123,21 @@ class RuleDiagnostics:
 
     def to_json(self, indent: int | None = 2) -> str:
         """The results as JSON with sorted keys (byte-stable for equal results)."""
-        return json.dumps(self._results, indent=indent, sort_keys=True, allow_nan=False, ensure_ascii=False)
+        return json_text(json.dumps(self._results, indent=indent, sort_keys=True, allow_nan=False,
+                                    ensure_ascii=False))
 
     @classmethod
     def from_json(cls, text: str) -> RuleDiagnostics:
         """Rebuild diagnostics from :meth:`to_json` text (the pooled SHAP tables are not kept in JSON)."""
+        if isinstance(text, str):
+            check_depth(text, "json", f"{_WHERE}.from_json", EvaluationError)
         try:
             results = json.loads(text)
         except (TypeError, json.JSONDecodeError) as exc:
             raise EvaluationError(f"{_WHERE}.from_json: the text is not valid JSON ({exc}); pass the text "
                                   "written by to_json, e.g. Path('diagnostics.json').read_text().") from exc
+        if isinstance(results, dict):  # anything else gets the constructor's message
+            check_shape(results, DIAGNOSTICS_SHAPE, f"{_WHERE}.from_json")
         return cls(results)
 
     @property
@@ -229,22 +238,21 @@ class RuleDiagnostics:
         """The diagnostics as Markdown; ``images`` maps a figure name to a file to link."""
         return _markdown(self, dict(images or {}))
 
-    def save(self, folder: str | Path) -> Path:
-        """Write ``diagnostics.md``, ``diagnostics.json`` and a PNG per figure into ``folder``."""
-        folder = Path(folder)
-        try:
-            folder.mkdir(parents=True, exist_ok=True)
-        except OSError as exc:
-            raise EvaluationError(f"{_WHERE}.save: cannot create the folder {str(folder)!r} ({exc}); pass a "
-                                  "writable path.") from exc
-        images = {}
-        for name, fig in self.figures().items():
-            file = name.replace(":", "_") + ".png"
-            fig.savefig(folder / file, dpi=110)
-            images[name] = file
-        (folder / "diagnostics.json").write_text(self.to_json() + "\n", encoding="utf-8")
-        (folder / "diagnostics.md").write_text(self.to_markdown(images), encoding="utf-8")
-        return folder
+    def save(self, folder: str | Path, *, overwrite: bool = False) -> Path:
+        """Write ``diagnostics.md``, ``diagnostics.json`` and a PNG per figure into ``folder``.
+
+        All or nothing, as :meth:`IncrementalValueReport.save`: an existing non-empty ``folder`` is refused
+        unless ``overwrite`` is true.
+        """
+        with new_folder(folder, overwrite=overwrite, where=f"{_WHERE}.save") as work:
+            images = {}
+            for name, fig in self.figures().items():
+                file = name.replace(":", "_") + ".png"
+                fig.savefig(work / file, dpi=110)
+                images[name] = file
+            (work / "diagnostics.json").write_text(self.to_json() + "\n", encoding="utf-8")
+            (work / "diagnostics.md").write_text(self.to_markdown(images), encoding="utf-8")
+        return Path(folder)
 
     def __repr__(self) -> str:
         data = self._results["data"]
@@ -305,9 +313,10 @@ def _p_phrase(p) -> str:
 
 def _hierarchical_md(h: dict) -> list[str]:
     if not h.get("available"):
-        return [f"Not computed: {h.get('reason')}."]
+        return [f"Not computed: {markdown_text(h.get('reason'))}."]
     stat = f"F({h['df1']}, {h['df2']})" if h["kind"] == "continuous" else f"LR χ²({h['df1']})"
-    return [f"Outcome ~ {', '.join(h['base'])}, then + the rate of {', '.join(h['extra'])} "
+    return [f"Outcome ~ {markdown_text(', '.join(h['base']))}, then + the rate of "
+            f"{markdown_text(', '.join(h['extra']))} "
             f"({h['nobs']} students, {h['kind']} outcome).", "",
             f"{h['r2_name']}: {number(h['r2_base'])} → {number(h['r2_full'])} (Δ {signed(h['delta_r2'])}); "
             f"{stat} = {number(h['statistic'], 2)}, {_p_phrase(h['p_value'])}; ΔAIC = {signed(h['delta_aic'], 1)}."]
@@ -315,7 +324,7 @@ def _hierarchical_md(h: dict) -> list[str]:
 
 def _shap_md(shap: dict, images: Mapping[str, str]) -> list[str]:
     if not shap.get("available"):
-        return [f"Not computed: {shap.get('reason')}"]
+        return [f"Not computed: {markdown_text(shap.get('reason'))}"]
     lines = [f"{shap['n_rows']} held-out units explained over {shap['n_folds']} folds; rule features carry "
              f"{shap['rule_share']:.1%} of the total |SHAP| (mined features {shap['mined_share']:.1%}).", ""]
     for name, file in images.items():
@@ -328,21 +337,22 @@ def _markdown(diag: RuleDiagnostics, images: Mapping[str, str]) -> str:
     d, s = r["data"], r["settings"]
     lines = ["# Rule diagnostics", "",
              f"{d['n_units']:,} units of {d['n_students']:,} students ({d['n_events']:,} events), positive rate "
-             f"{d['positive_rate']:.3f}; {s['n_folds']} student-grouped folds (cv={s['cv']}), model {s['model']}, "
+             f"{d['positive_rate']:.3f}; {s['n_folds']} student-grouped folds (cv={markdown_text(s['cv'])}), model "
+             f"{code_span(s['model'])}, "
              f"random_state={s['random_state']}.", "",
-             "## Rules on held-out units", "", markdown_table(_rules_md(diag)), "",
+             "## Rules on held-out units", "", markdown_table(_rules_md(diag), ["name", "text"] + ["num"] * 12), "",
              "Firing rate: firings per event over all events of the units' students. AUC: the rule's unit value "
              "against the label. R² from mined: out-of-fold R² of the mined features predicting the unit value "
              "(high = redundant). Partial r: the unit value and the label, controlling for the mined detector's "
              "out-of-fold logit score; the student CI resamples students. Beyond features: also controlling for the mined "
              "features' out-of-fold prediction of the unit value.", "",
-             "## Stability and external validity", "", markdown_table(_external_md(diag)), ""]
+             "## Stability and external validity", "", markdown_table(_external_md(diag), ["name"] + ["num"] * 7), ""]
     pops = _population_md(diag)
     if len(pops):
-        lines += ["## Per population", "", markdown_table(pops), ""]
+        lines += ["## Per population", "", markdown_table(pops, ["name", "key"] + ["num"] * 5), ""]
     lines += ["## Hierarchical regression of the student outcome", "", *_hierarchical_md(r["hierarchical"]), "",
               "## SHAP attributions of the combined detector", "", *_shap_md(r["shap"], images)]
     if r["notes"]:
-        lines += ["## Notes", "", *[f"- {n}" for n in r["notes"]], ""]
+        lines += ["## Notes", "", *[f"- {markdown_text(n)}" for n in r["notes"]], ""]
     lines += ["## Cautions", "", *[f"- {c}" for c in CAUTIONS], ""]
     return "\n".join(lines)

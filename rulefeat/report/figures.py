@@ -17,6 +17,7 @@ from matplotlib.figure import Figure
 
 from .._text import did_you_mean
 from ..errors import EvaluationError
+from .safe import plot_text
 
 __all__ = [
     "roc_points",
@@ -36,7 +37,7 @@ _LABELS = {"auc": "AUC", "kappa": "Cohen's kappa", "average_precision": "average
 
 
 def _label(metric: str) -> str:
-    return _LABELS.get(metric, metric)
+    return plot_text(_LABELS.get(metric, metric))
 
 
 def _new_figure(width: float, height: float, ncols: int = 1) -> tuple[Figure, list]:
@@ -50,8 +51,8 @@ def _empty(message: str, title: str) -> Figure:
     """A small figure that says why there is nothing to draw (instead of an error)."""
     fig, (ax,) = _new_figure(5.0, 2.0)
     ax.set_axis_off()
-    ax.set_title(title)
-    ax.text(0.5, 0.5, message, ha="center", va="center", wrap=True, transform=ax.transAxes)
+    ax.set_title(plot_text(title))
+    ax.text(0.5, 0.5, plot_text(message), ha="center", va="center", wrap=True, transform=ax.transAxes)
     return fig
 
 
@@ -154,7 +155,7 @@ def plot_roc(curves: Mapping[str, Mapping], title: str = "Pooled out-of-fold ROC
     ax.plot([0, 1], [0, 1], color="0.6", linestyle=":", linewidth=1, label="chance (AUC 0.500)")
     for name, curve in curves.items():
         ax.plot(curve["fpr"], curve["tpr"], drawstyle="default", linewidth=1.8,
-                color=VARIANT_COLORS.get(name), label=f"{name} (AUC {curve['auc']:.3f})")
+                color=VARIANT_COLORS.get(name), label=f"{plot_text(name)} (AUC {curve['auc']:.3f})")
     ax.set(xlim=(0, 1), ylim=(0, 1.01), xlabel="false-positive rate", ylabel="true-positive rate",
            title=title)
     ax.set_aspect("equal")
@@ -190,7 +191,7 @@ def plot_rule_effects(per_rule: pd.DataFrame, metric: str = "auc") -> Figure:
                     xerr=_error_bars(per_rule, prefix), fmt=marker, color=color, capsize=3,
                     label=f"Δ when {text}")
     ax.axvline(0.0, color="0.3", linewidth=1)
-    ax.set_yticks(position, [str(r) for r in per_rule["rule"]])
+    ax.set_yticks(position, [plot_text(r) for r in per_rule["rule"]])
     ax.set(xlabel=f"Δ {_label(metric)} (95% CI)", title=title, ylim=(-0.7, n - 0.3))
     fig.legend(loc="outside lower center", ncols=2, fontsize="small")
     return fig
@@ -258,11 +259,11 @@ def plot_transfer(transfer: pd.DataFrame, metric: str = "auc") -> Figure:
     base = np.arange(len(table), dtype=float)
     for i, name in enumerate(names):
         ax.bar(base + (i - (len(names) - 1) / 2) * width, table[name].to_numpy(dtype=np.float64), width,
-               color=VARIANT_COLORS.get(name), label=name)
+               color=VARIANT_COLORS.get(name), label=plot_text(name))
     if metric == "auc":
         ax.axhline(0.5, color="0.6", linestyle=":", linewidth=1, label="chance")
     _annotate_deltas(ax, transfer, table.index, base, metric)
-    ax.set_xticks(base, [str(p) for p in table.index])
+    ax.set_xticks(base, [plot_text(p, limit=40) for p in table.index])
     ax.set(xlabel="held-out population", ylabel=_label(metric), title=title)
     ax.margins(y=0.12)
     fig.legend(loc="outside lower center", ncols=len(names) + 1, fontsize="small")

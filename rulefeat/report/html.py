@@ -27,7 +27,9 @@ import numpy as np
 import pandas as pd
 
 from ..errors import EvaluationError
+from .safe import visible
 from .tables import CAUTIONS, NA, count, interval, metric_label, number, tables
+from .writing import write_file
 
 __all__ = ["save_html", "html_view", "render_html", "format_value", "p_value_text"]
 
@@ -406,8 +408,15 @@ def render_html(view: Mapping) -> str:
 
     source = resources.files("rulefeat.report").joinpath("templates", TEMPLATE).read_text(encoding="utf-8")
     environment = jinja2.Environment(autoescape=True, undefined=jinja2.StrictUndefined, trim_blocks=True,
-                                     lstrip_blocks=True)
+                                     lstrip_blocks=True, finalize=_shown)
     return environment.from_string(source).render(**view)
+
+
+def _shown(value):
+    """Every value the template prints: hidden characters (controls, bidi overrides) written visibly.
+
+    Markup the template built itself (``__html__``) is left as it is: it holds no user text unescaped."""
+    return visible(value) if isinstance(value, str) and not hasattr(value, "__html__") else value
 
 
 def _target(path) -> Path:
@@ -430,7 +439,8 @@ def save_html(report, path: str | Path, diagnostics=None) -> Path:
     report : IncrementalValueReport
         The evaluation report (:func:`rulefeat.incremental_value`).
     path : str or Path
-        The file to write (its folder is created when missing); UTF-8.
+        The file to write (its folder is created when missing); UTF-8.  It is written to a temporary
+        file beside it and moved into place, so an existing page is replaced whole or not at all.
     diagnostics : RuleDiagnostics, optional
         Per-rule validity diagnostics from :func:`rulefeat.diagnose`, shown in their own section.
 
@@ -445,11 +455,4 @@ def save_html(report, path: str | Path, diagnostics=None) -> Path:
     >>> report.save_html("report.html", diagnostics=diag)    # doctest: +SKIP
     """
     target = _target(path)
-    text = render_html(html_view(report, diagnostics))
-    try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        target.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise EvaluationError(f"save_html: cannot write {str(target)!r} ({exc}); pass a writable file path."
-                              ) from exc
-    return target
+    return write_file(target, render_html(html_view(report, diagnostics)), where="save_html")

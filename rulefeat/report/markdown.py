@@ -6,35 +6,49 @@ dependency) lays out the display tables built once in ``tables.py``.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 
 import pandas as pd
 
-from .tables import CAUTIONS, NA, Table, code_span, count, is_missing, number
+from .safe import code_span, fenced, markdown_text, visible
+from .tables import CAUTIONS, NA, Table, count, is_missing, number
 
 __all__ = ["markdown_table", "render_markdown"]
 
 
 # -- Markdown table writer -----------------------------------------------------------------------
-def _cell(value) -> str:
-    text = NA if is_missing(value) else str(value)
-    return text.replace("\r", " ").replace("\n", " ").replace("|", "\\|")
+def _cell(value, kind: str = "text") -> str:
+    """One table cell: our own numbers as they are, code as a code span, every other text escaped."""
+    if is_missing(value):
+        return NA
+    if kind == "code":
+        text = code_span(value)
+    elif kind == "num":
+        text = visible(str(value), breaks=True)
+    else:
+        text = markdown_text(value)
+    return text.replace("|", "\\|") if kind in ("code", "num") else text  # markdown_text escapes its own
 
 
-def markdown_table(frame: pd.DataFrame) -> str:
-    """A GitHub-flavoured Markdown table of a DataFrame's columns (the index is not written).
+def markdown_table(table: Table | pd.DataFrame, kinds: Sequence[str] | None = None) -> str:
+    """A GitHub-flavoured Markdown table of a :class:`Table` (its kinds) or a DataFrame (the index is not
+    written); ``kinds`` per column as in ``tables.py``, default every column user text (escaped).
 
     Examples
     --------
-    >>> print(markdown_table(pd.DataFrame({"rule": ["a|b"], "Δ": ["+0.010"]})))
+    >>> print(markdown_table(pd.DataFrame({"rule": ["a|b <i>"], "Δ": ["+0.010"]}), ["text", "num"]))
     | rule | Δ |
     | --- | --- |
-    | a\\|b | +0.010 |
+    | a\\|b &lt;i&gt; | +0.010 |
     """
-    head = "| " + " | ".join(_cell(c) for c in frame.columns) + " |"
-    rule = "| " + " | ".join("---" for _ in frame.columns) + " |"
-    rows = frame.itertuples(index=False, name=None)
-    body = ["| " + " | ".join(_cell(v) for v in row) + " |" for row in rows]
+    if isinstance(table, Table):
+        columns, kinds, rows = table.columns, table.kinds, table.rows
+    else:
+        columns, rows = table.columns, list(table.itertuples(index=False, name=None))
+        kinds = list(kinds) if kinds is not None else ["text"] * len(columns)
+    head = "| " + " | ".join(_cell(c, "num") for c in columns) + " |"
+    rule = "| " + " | ".join("---" for _ in columns) + " |"
+    body = ["| " + " | ".join(_cell(v, k) for v, k in zip(row, kinds, strict=True)) + " |" for row in rows]
     return "\n".join([head, rule, *body])
 
 
@@ -46,7 +60,7 @@ def _image(images: Mapping[str, str], name: str, alt: str) -> list[str]:
 def _data_section(results: dict, t: dict) -> list[str]:
     data, settings = results["data"], results["settings"]
     log = data.get("log") or {}
-    actions = ", ".join(f"{k} {count(v)}" for k, v in sorted((log.get("actions") or {}).items()))
+    actions = ", ".join(f"{markdown_text(k)} {count(v)}" for k, v in sorted((log.get("actions") or {}).items()))
     rate = data.get("positive_rate")
     lines = ["## Data", "",
              f"- Units: {count(data.get('n_units'))} ({settings.get('unit')}), students: "
@@ -58,10 +72,10 @@ def _data_section(results: dict, t: dict) -> list[str]:
              f"{settings.get('repeats')} repeats, random_state {settings.get('random_state')}, "
              f"alternative {settings.get('alternative')!r}, α = {settings.get('alpha')}, "
              f"bootstrap n = {settings.get('n_boot')}; model {code_span(settings.get('model'))}."]
-    lines += [f"- Log issue: {issue}" for issue in log.get("issues") or []]
+    lines += [f"- Log issue: {markdown_text(issue)}" for issue in log.get("issues") or []]
     if len(t["populations"]):
         lines += ["", f"Populations (column {code_span(settings.get('population_column'))}):", "",
-                  markdown_table(t["populations"].frame())]
+                  markdown_table(t["populations"])]
     return [*lines, ""]
 
 
@@ -70,7 +84,7 @@ def _rules_section(results: dict, t: dict) -> list[str]:
     return ["## Rules", "",
             f"{len(results['rules'])} rules (text hash {code_span(results.get('rules_hash'))}); features: "
             f"{count(counts.get('mined'))} mined, {count(counts.get('rules'))} from rules.", "",
-            markdown_table(t["rules"].frame()), ""]
+            markdown_table(t["rules"]), ""]
 
 
 def _value_section(report, results: dict, t: dict, images: Mapping[str, str]) -> list[str]:
@@ -78,15 +92,15 @@ def _value_section(report, results: dict, t: dict, images: Mapping[str, str]) ->
     comp = next((c for c in results["comparisons"]
                  if (c["variant"], c["baseline"], c["metric"]) == ("combined", "mined", m)), {})
     alternative = results["settings"].get("alternative")
-    return ["## Incremental value", "", f"**{report.effect()}**", "",
-            markdown_table(t["primary"].frame()), "",
+    return ["## Incremental value", "", f"**{markdown_text(report.effect())}**", "",
+            markdown_table(t["primary"]), "",
             f"Δ is the variant minus mined in the metric's own units. The headline p is the corrected "
             f"resampled t-test over folds (Nadeau & Bengio 2003), alternative {alternative!r}; the naive "
             f"fold t-test ignores the overlap of training sets and is shown only beside it. CI: "
-            f"{comp.get('ci_method') or NA}, on the pooled out-of-fold predictions.", "",
+            f"{markdown_text(comp.get('ci_method') or NA)}, on the pooled out-of-fold predictions.", "",
             *_image(images, "roc", "ROC curves"),
-            "### All metrics", "", markdown_table(t["metrics"].frame()), "",
-            "### Differences on every metric", "", markdown_table(t["comparisons"].frame()), ""]
+            "### All metrics", "", markdown_table(t["metrics"]), "",
+            "### Differences on every metric", "", markdown_table(t["comparisons"]), ""]
 
 
 def _per_rule_section(t: dict, images: Mapping[str, str]) -> list[str]:
@@ -96,15 +110,15 @@ def _per_rule_section(t: dict, images: Mapping[str, str]) -> list[str]:
             "Δ when dropped = combined − combined without the rule; "
             "Δ when added = mined plus the rule − mined. Holm's correction is applied separately to the "
             "dropped and the added family of tests.", "",
-            markdown_table(t["per_rule"].frame()), "", *_image(images, "rule_effects", "Per-rule effects")]
+            markdown_table(t["per_rule"]), "", *_image(images, "rule_effects", "Per-rule effects")]
 
 
 def _transfer_section(report, t: dict, images: Mapping[str, str]) -> list[str]:
     head = ["## Transfer to unseen populations", ""]
     if not len(t["transfer"]):
-        return [*head, f"Not available: {report.transfer().attrs.get('reason')}", ""]
+        return [*head, f"Not available: {markdown_text(report.transfer().attrs.get('reason'))}", ""]
     return [*head, "Each population in turn is held out; the detectors are trained on the others.", "",
-            markdown_table(t["transfer"].frame()), "", *_image(images, "transfer", "Transfer by population")]
+            markdown_table(t["transfer"]), "", *_image(images, "transfer", "Transfer by population")]
 
 
 def _curve_section(t: dict, images: Mapping[str, str]) -> list[str]:
@@ -112,12 +126,12 @@ def _curve_section(t: dict, images: Mapping[str, str]) -> list[str]:
     if not len(t["learning_curve"]):
         return [*head, "The learning curve was not computed.", ""]
     return [*head, "Training folds subsampled by student; the CI reflects the spread over folds.", "",
-            markdown_table(t["learning_curve"].frame()), "", *_image(images, "learning_curve", "Learning curve")]
+            markdown_table(t["learning_curve"]), "", *_image(images, "learning_curve", "Learning curve")]
 
 
 def _guards_section(results: dict) -> list[str]:
-    guards = [f"- **{g.get('kind')}**: {_cell(g.get('message'))}" for g in results["guards"]]
-    notes = [f"- {_cell(n)}" for n in results["notes"]]
+    guards = [f"- **{markdown_text(g.get('kind'))}**: {markdown_text(g.get('message'))}" for g in results["guards"]]
+    notes = [f"- {markdown_text(n)}" for n in results["notes"]]
     return ["## Guards and notes", "", "### Guards", "", *(guards or ["No guard fired."]), "",
             "### Notes", "", *(notes or ["No notes."]), ""]
 
@@ -125,7 +139,7 @@ def _guards_section(results: dict) -> list[str]:
 def _reproducibility_section(results: dict) -> list[str]:
     repro = results["reproducibility"]
     lines = [f"{key}: {'null' if value is None else value}" for key, value in sorted(repro.items())]
-    return ["## Reproducibility", "", "```text", *lines, "```", ""]
+    return ["## Reproducibility", "", *fenced(lines), ""]
 
 
 def render_markdown(report, t: dict[str, Table], images: Mapping[str, str]) -> str:

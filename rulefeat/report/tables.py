@@ -13,6 +13,8 @@ from dataclasses import dataclass
 
 import pandas as pd
 
+from .safe import code_span
+
 __all__ = ["METRIC_LABELS", "LOWER_IS_BETTER", "NA", "CAUTIONS", "Table", "metric_order", "metric_label", "tables",
            "number", "signed", "p_text", "interval", "count", "code_span", "is_missing"]
 
@@ -70,12 +72,6 @@ def metric_order(metrics: Iterable[str]) -> list[str]:
 
 def metric_label(metric: str) -> str:
     return METRIC_LABELS.get(metric, metric)
-
-
-def code_span(text: str) -> str:
-    """An inline Markdown code span that survives backticks in the text."""
-    text = " ".join(str(text).split())  # a model repr may span lines; a code span may not
-    return f"`` {text} ``" if "`" in text else f"`{text}`"
 
 
 @dataclass(frozen=True)

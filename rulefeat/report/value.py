@@ -19,9 +19,13 @@ import pandas as pd
 
 from .._text import did_you_mean
 from ..errors import EvaluationError
+from ..limits import check_depth
 from .markdown import render_markdown
 from .plain import to_plain
+from .safe import csv_frame, json_text
+from .shape import REPORT_SHAPE, check_shape
 from .tables import LOWER_IS_BETTER, METRIC_LABELS, metric_order, signed, tables
+from .writing import new_folder
 
 __all__ = ["IncrementalValueReport"]
 
@@ -306,8 +310,8 @@ class IncrementalValueReport:
         indent : int or None
             Spaces per level; None writes one line.
         """
-        return json.dumps(to_plain(self.to_dict()), indent=indent, sort_keys=True, allow_nan=False,
-                          ensure_ascii=False)
+        return json_text(json.dumps(to_plain(self.to_dict()), indent=indent, sort_keys=True, allow_nan=False,
+                                    ensure_ascii=False))
 
     @classmethod
     def from_json(cls, text: str, oof: pd.DataFrame | None = None,
@@ -316,6 +320,8 @@ class IncrementalValueReport:
 
         The JSON holds no predictions: pass ``oof`` (e.g. read from ``oof.csv``) to draw the ROC again.
         """
+        if isinstance(text, str):
+            check_depth(text, "json", "IncrementalValueReport.from_json", EvaluationError)
         try:
             results = json.loads(text)
         except (TypeError, json.JSONDecodeError) as exc:
@@ -324,30 +330,45 @@ class IncrementalValueReport:
                                   ) from exc
         if oof is None:
             oof = pd.DataFrame({c: pd.Series(dtype="float64") for c in _OOF_COLUMNS})
+        if isinstance(results, dict):  # anything else gets the constructor's message
+            check_shape(results, REPORT_SHAPE, "IncrementalValueReport.from_json")
         return cls(results, oof, oof_transfer)
+
+    def with_inputs(self, inputs: Mapping[str, Mapping]) -> IncrementalValueReport:
+        """A copy whose ``reproducibility`` block also lists the input files: ``{role: {"name", "sha256",
+        "bytes"}}``, file names and content hashes only, never a folder of the machine that ran it."""
+        for role, record in inputs.items():
+            if not isinstance(record, Mapping) or "/" in str(record.get("name", "")) or "\\" in str(
+                    record.get("name", "")):
+                raise EvaluationError(f"IncrementalValueReport.with_inputs: inputs[{role!r}] must be a dict with "
+                                      f"a file 'name' (no folders) and its 'sha256'; got {record!r}.")
+        results = copy.deepcopy(self._results)
+        sorted_inputs = json.loads(json.dumps(dict(inputs), sort_keys=True))  # as from_json will read it back
+        results["reproducibility"] = {**results["reproducibility"], "inputs": sorted_inputs}
+        return type(self)(results, self._oof, self._oof_transfer)
 
     def to_markdown(self, images: Mapping[str, str] | None = None) -> str:
         """The report as Markdown; ``images`` maps a figure name (``roc``, ...) to a file to link."""
         return render_markdown(self, tables(self), dict(images or {}))
 
-    def save(self, folder: str | Path) -> Path:
-        """Write ``report.md``, ``report.json``, ``oof.csv`` and the available PNG figures into ``folder``."""
-        folder = Path(folder)
-        try:
-            folder.mkdir(parents=True, exist_ok=True)
-        except OSError as exc:
-            raise EvaluationError(f"IncrementalValueReport.save: cannot create the folder {str(folder)!r} "
-                                  f"({exc}); pass a writable path.") from exc
-        images = {}
-        for name, draw in self._available_figures().items():
-            draw().savefig(folder / _FIGURES[name], dpi=110)
-            images[name] = _FIGURES[name]
-        (folder / "report.json").write_text(self.to_json() + "\n", encoding="utf-8")
-        (folder / "report.md").write_text(self.to_markdown(images), encoding="utf-8")
-        self._oof.to_csv(folder / "oof.csv", index=False)
-        if self._oof_transfer is not None:
-            self._oof_transfer.to_csv(folder / "oof_transfer.csv", index=False)
-        return folder
+    def save(self, folder: str | Path, *, overwrite: bool = False) -> Path:
+        """Write ``report.md``, ``report.json``, ``oof.csv`` and the available PNG figures into ``folder``.
+
+        All or nothing: the files are written into a temporary folder beside ``folder``, which replaces it
+        at the end.  An existing non-empty ``folder`` is refused unless ``overwrite`` is true.  Text cells of
+        the CSV files that a spreadsheet would run as a formula start with ``'`` (see ``report/safe.py``).
+        """
+        with new_folder(folder, overwrite=overwrite, where="IncrementalValueReport.save") as work:
+            images = {}
+            for name, draw in self._available_figures().items():
+                draw().savefig(work / _FIGURES[name], dpi=110)
+                images[name] = _FIGURES[name]
+            (work / "report.json").write_text(self.to_json() + "\n", encoding="utf-8")
+            (work / "report.md").write_text(self.to_markdown(images), encoding="utf-8")
+            csv_frame(self._oof).to_csv(work / "oof.csv", index=False)
+            if self._oof_transfer is not None:
+                csv_frame(self._oof_transfer).to_csv(work / "oof_transfer.csv", index=False)
+        return Path(folder)
 
     def save_html(self, path: str | Path, diagnostics=None) -> Path:
         """Write one self-contained HTML page (figures embedded); see :func:`rulefeat.report.html.save_html`."""

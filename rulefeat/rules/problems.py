@@ -28,10 +28,11 @@ from __future__ import annotations
 import re
 
 from ..errors import RuleCheckError, RulefeatError, RuleSyntaxError
+from ..limits import MAX_TOML_DEPTH, check_depth, nesting_depth
 from ._format import error
 from .check import Schema, check_all, check_rule
 from .parse import parse
-from .ruleset import read_source, rule_from_table, rule_tables
+from .ruleset import read_source, rule_from_table, rule_tables, source_name
 
 try:
     import tomllib
@@ -52,6 +53,7 @@ def find_problems(source, log=None) -> list[RulefeatError]:
     """
     try:
         text = read_source(source)
+        check_depth(text, "toml", source_name(source), RuleSyntaxError)
         tables = rule_tables(_toml(text))
     except RulefeatError as exc:
         return [_tag(exc, None)]
@@ -112,6 +114,8 @@ def rule_line(text: str, rule: str | None) -> int | None:
 
 def rule_names(text: str) -> list[str]:
     """The names of the ``[rules.<name>]`` tables of a rules file's text (empty when it is not valid TOML)."""
+    if nesting_depth(text, "toml") > MAX_TOML_DEPTH:
+        return []
     try:
         tables = tomllib.loads(text).get("rules")
     except tomllib.TOMLDecodeError:

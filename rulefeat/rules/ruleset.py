@@ -13,8 +13,9 @@ import numpy as np
 import pandas as pd
 
 from .. import _frame
-from .._text import did_you_mean
+from .._text import did_you_mean, first_hidden, visible
 from ..errors import ParameterError, RuleCheckError, RuleSyntaxError
+from ..limits import MAX_RULE_TEXT, check_depth
 from .check import check_all
 from .compile import MAX_WORK, Program
 from .functions import FUNCTIONS
@@ -43,6 +44,20 @@ def _check_name(name) -> None:
     if name in KEYWORDS or name in FUNCTIONS:
         what = "a keyword" if name in KEYWORDS else "a function name"
         raise RuleCheckError(f"Rule: name {name!r} is {what} of the rule language; choose another name.")
+
+
+def _check_text(name: str, key: str, text: str) -> None:
+    """Rule text travels into shared reports: refuse what would hide itself there, and runaway lengths."""
+    if len(text) > MAX_RULE_TEXT:
+        raise RuleCheckError(f"Rule {name!r}: {key!r} has {len(text):,} characters, more than the limit of "
+                             f"{MAX_RULE_TEXT:,} (rulefeat.limits.MAX_RULE_TEXT); shorten it.")
+    hidden = first_hidden(text)
+    if hidden is not None:
+        position, escape = hidden
+        raise RuleCheckError(f"Rule {name!r}: {key!r} holds the hidden character {escape} at position {position} "
+                             f"(a control, NUL or bidirectional-override character, which can make text read "
+                             f"differently from what it is): {visible(text[max(0, position - 20):position + 20])!r}. "
+                             "Remove it; tabs and line breaks are allowed.")
 
 
 def _report(name: str, report) -> tuple[str, ...]:
@@ -103,6 +118,8 @@ class Rule:
         for key, value in (("means", self.means), ("why", self.why)):
             if not isinstance(value, str):
                 raise RuleCheckError(f"Rule {self.name!r}: {key!r} must be a string.")
+        for key, value in (("means", self.means), ("why", self.why)):  # 'when' is the tokenizer's
+            _check_text(self.name, key, value)
         object.__setattr__(self, "report", _report(self.name, self.report))
 
 
@@ -230,6 +247,7 @@ class RuleSet:
     def from_toml(cls, source) -> RuleSet:
         """Read rules from TOML text or a ``.toml`` file (``[rules.<name>]`` tables; see docs/rules.md)."""
         text = read_source(source)
+        check_depth(text, "toml", f"RuleSet.from_toml: {source_name(source)}", RuleSyntaxError)
         try:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
@@ -253,11 +271,21 @@ class RuleSet:
         return hashlib.sha256(self.to_toml().encode("utf-8")).hexdigest()
 
 
+def _is_path(source) -> bool:
+    return isinstance(source, os.PathLike) or (
+        isinstance(source, str) and "\n" not in source and source.strip().endswith(".toml"))
+
+
+def source_name(source) -> str:
+    """How errors name a rules source: the file as given, or "the rules text"."""
+    return f"the rules file {str(source)!r}" if _is_path(source) else "the rules text"
+
+
 def read_source(source) -> str:
     """The text of a rules file: TOML text as it is, bytes decoded, a ``.toml`` path read."""
     if isinstance(source, bytes):
         return source.decode("utf-8", errors="replace")
-    if isinstance(source, str) and ("\n" in source or not source.strip().endswith(".toml")):
+    if isinstance(source, str) and not _is_path(source):
         return source
     if not isinstance(source, (str, os.PathLike)):
         raise RuleSyntaxError(f"RuleSet.from_toml: expected TOML text or a path to a .toml file, got "

@@ -12,11 +12,12 @@ from typing import NamedTuple
 
 from .._text import did_you_mean
 from ..errors import RuleSyntaxError
+from ..limits import MAX_RULE_TEXT
 from ._format import Span, error
 
 __all__ = ["Token", "tokenize", "KEYWORDS", "UNITS", "MAX_TEXT", "MAX_NUMBER"]
 
-MAX_TEXT = 20_000
+MAX_TEXT = MAX_RULE_TEXT
 MAX_NUMBER = 1e15
 KEYWORDS = frozenset({"and", "or", "not", "in", "true", "false"})
 UNITS = {"ms": 0.001, "s": 1.0, "min": 60.0, "h": 3600.0}

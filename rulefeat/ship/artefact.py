@@ -33,6 +33,7 @@ import joblib
 from .._base import UnitTransformer
 from .._version import __version__
 from ..errors import DetectorFileError, LogSchemaError, ParameterError, RulefeatWarning
+from ..limits import check_depth
 from ..log.eventlog import EventLog
 from .bind import bind, unit_transformers
 
@@ -225,7 +226,9 @@ def _open(path) -> tuple[dict, bytes | None, zipfile.ZipFile]:
     if MANIFEST not in names:
         raise DetectorFileError(f"load_detector: {str(path)!r} has no {MANIFEST}; it is not a rulefeat detector file.")
     try:
-        manifest = json.loads(zf.read(MANIFEST).decode("utf-8"))
+        text = zf.read(MANIFEST).decode("utf-8")
+        check_depth(text, "json", f"load_detector: the {MANIFEST} of {str(path)!r}", DetectorFileError)
+        manifest = json.loads(text)
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise DetectorFileError(f"load_detector: the {MANIFEST} of {str(path)!r} is not valid JSON ({exc}).") from exc
     if not isinstance(manifest, dict) or manifest.get("format") != FORMAT:

@@ -412,3 +412,74 @@ def test_score_refuses_tampered_hash_and_unknown_units(saved_detector, demo, tmp
     missing = rulefeat_main(capsys, "score", tmp_path / "absent.zip", *common, "--units", stranger,
                             check_code=2)
     assert missing.stderr.count("\n") == 1
+
+
+# -- hardening: the report folder, input records, hostile cells --------------------------------------------------
+def test_evaluate_refuses_a_non_empty_out_before_it_starts(demo, tmp_path, capsys):
+    folder, _ = demo
+    out = tmp_path / "taken"
+    out.mkdir()
+    (out / "notes.txt").write_text("mine")
+    own = ["--events", folder / "events.csv", "--units", folder / "windows.csv", *FAST, "--no-diagnose", "--out", out]
+    done = rulefeat_main(capsys, "evaluate", *own, check_code=2)
+    assert done.stderr.strip().splitlines() == [
+        f"rulefeat evaluate: error: --out: the folder {str(out)!r} exists and is not empty; pass --overwrite to "
+        "replace it, or choose another --out"]
+    assert "EventLog(" not in done.stdout  # refused before the log was even read
+    assert [p.name for p in out.iterdir()] == ["notes.txt"]
+    rulefeat_main(capsys, "evaluate", *own, "--overwrite", check_code=0)
+    assert sorted(p.name for p in out.iterdir()) == ["oof.csv", "report.html", "report.json", "report.md", "roc.png"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["taken"]  # no temporary folder left beside it
+
+
+def test_report_json_keeps_input_names_and_hashes_not_machine_paths(demo, evaluated):
+    import hashlib
+
+    folder, _ = demo
+    out, _ = evaluated
+    text = (out / "report.json").read_text(encoding="utf-8")
+    assert str(folder) not in text and str(folder.parent) not in text
+    repro = json.loads(text)["reproducibility"]
+    assert set(repro["inputs"]) == {"events", "units", "rules", "outcomes"}
+    for role, name in (("events", "events.csv"), ("units", "windows.csv"), ("rules", "rules.toml")):
+        record = repro["inputs"][role]
+        assert record["name"] == name and record["bytes"] == (folder / name).stat().st_size
+        assert record["sha256"] == hashlib.sha256((folder / name).read_bytes()).hexdigest()
+    assert "--events events.csv" in repro["command"] and "--out report" in repro["command"]
+
+
+def test_columns_that_are_not_a_flat_json_object_are_usage_errors(demo, tmp_path, capsys):
+    folder, _ = demo
+    own = ["--events", folder / "events.csv", "--units", folder / "windows.csv", *FAST, "--out", tmp_path / "r"]
+    for columns, message in (("[" * 10_000 + "]" * 10_000, "expected a flat JSON object"),
+                             ('{"student": {"a": {"b": 1}}}', "expected a flat JSON object"),
+                             ('["student"]', "expected a JSON object"), ("{oops", "not valid JSON")):
+        done = rulefeat_main(capsys, "evaluate", *own, "--columns", columns, check_code=2)
+        assert message in done.stderr and len(done.stderr.strip().splitlines()) == 1
+
+
+def test_features_csv_neutralises_formula_cells(demo, tmp_path, capsys):
+    folder, _ = demo
+    events, units = pd.read_csv(folder / "events.csv"), pd.read_csv(folder / "windows.csv")
+    first = units["student"].iloc[0]
+    events["student"] = events["student"].replace({first: "=HYPERLINK(\"x\")"})
+    units["student"] = units["student"].replace({first: "=HYPERLINK(\"x\")"})
+    events.to_csv(tmp_path / "events.csv", index=False)
+    units.to_csv(tmp_path / "units.csv", index=False)
+    rulefeat_main(capsys, "features", "--kind", "mined", "--events", tmp_path / "events.csv", "--units",
+                  tmp_path / "units.csv", "--out", tmp_path / "f.csv", check_code=0)
+    table = pd.read_csv(tmp_path / "f.csv")
+    assert (table["student"] == "'=HYPERLINK(\"x\")").sum() == (units["student"] == "=HYPERLINK(\"x\")").sum() > 0
+    assert table.select_dtypes("number").shape[1] > 2  # the features stay numbers
+
+
+def test_report_names_the_file_of_a_damaged_report(tmp_path, capsys):
+    deep = tmp_path / "report.json"
+    deep.write_text("[" * 50_000 + "]" * 50_000, encoding="utf-8")
+    done = rulefeat_main(capsys, "report", deep, "--json", check_code=1)
+    assert done.stderr.strip().splitlines() == [
+        f"rulefeat report: error: {str(deep)!r}: IncrementalValueReport.from_json: the JSON text nests 50000 levels of "
+        "[ ] / { }, more than the limit of 64 (rulefeat.limits.MAX_JSON_DEPTH); flatten it."]
+    deep.write_text(json.dumps({"task": "classification", "rules": [{"name": 3}]}), encoding="utf-8")
+    done = rulefeat_main(capsys, "report", deep, "--json", check_code=1)
+    assert "results['rules'][0]['name'] must be a string; got int 3." in done.stderr

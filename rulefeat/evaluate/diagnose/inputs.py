@@ -16,6 +16,7 @@ from ... import _frame
 from ..._text import did_you_mean
 from ..._validation import Interval, Satisfies, is_int, validate
 from ...errors import EvaluationError
+from ...limits import MAX_N_BOOT
 from ...rules.transformer import RuleFeatures, as_ruleset
 from .. import transformers
 from ..inputs import check_units, label_codes, log_populations, read_target
@@ -33,7 +34,7 @@ SETTINGS = {  # checked in this order, before the fold splitter
     "n_jobs": Satisfies(lambda v: v is None or (is_int(v) and v != 0),
                         "None or a non-zero integer (-1 for one worker per core)"),
     "shap_sample": Satisfies(lambda v: v is None or (is_int(v) and v >= 0), "an integer >= 0"),
-    "n_boot": Interval(int, 1, noun="an integer"),
+    "n_boot": Interval(int, 1, MAX_N_BOOT, noun="an integer"),
     "verbose": Interval(int, 0, noun="an integer"),
 }
 

@@ -20,6 +20,7 @@ from ... import _frame
 from ..._text import did_you_mean
 from ..._validation import Flag, Interval, Options, validate
 from ...errors import EvaluationError
+from ...limits import MAX_N_BOOT, MAX_REPEATS
 from ...report.value import IncrementalValueReport
 from ..folds import Job, PrecomputedSource, Task, TransformerSource, run_all
 from ..inputs import WHERE, prepare, prepare_precomputed
@@ -38,8 +39,8 @@ SETTINGS = {  # checked in this order; the fold splitter and the learning-curve 
     "alternative": Options(ALTERNATIVES),
     "ablation": Flag(),
     "transfer": Flag(),
-    "repeats": Interval(int, 1, noun="an integer"),
-    "n_boot": Interval(int, 1, noun="an integer"),
+    "repeats": Interval(int, 1, MAX_REPEATS, noun="an integer"),
+    "n_boot": Interval(int, 1, MAX_N_BOOT, noun="an integer"),
     "verbose": Interval(int, 0, noun="an integer"),
 }
 
