@@ -37,7 +37,9 @@ class Family:
         For fitting across many logs of disjoint students (:mod:`rulefeat.scale`):
         ``gather(training_events, settings) -> pieces`` reads what ``fit`` learns from, and
         ``fit_gathered(pieces, settings) -> state`` learns the same state from the pieces of
-        every log put together.  None where ``fit`` is None or fitted otherwise (mastery's
+        every log put together.  Pieces are a dict of arrays, with category codes under
+        ``"codes"`` (``{field: codes}``) and the labels they stand for under ``"labels"``, so they
+        can be recoded to shared labels and concatenated.  None where ``fit`` is None or fitted otherwise (mastery's
         EM sums expected counts across logs instead).
     """
 

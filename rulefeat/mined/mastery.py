@@ -342,6 +342,12 @@ class AttemptBlock:
     def __len__(self) -> int:
         return len(self._skill)
 
+    @property
+    def n_skill_codes(self) -> int:
+        """Largest skill code + 1 (0 without skill labels): the length :meth:`BKT.fit` gives its arrays."""
+        known = self._skill[self._skill >= 0]
+        return int(known.max()) + 1 if len(known) else 0
+
     def skill_counts(self, n_skills: int) -> np.ndarray:
         """Attempts per skill code ``0 .. n_skills - 1`` (-1 rows are not counted)."""
         known = self._skill[self._skill >= 0]

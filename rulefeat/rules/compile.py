@@ -405,7 +405,7 @@ class Program:
     def norm_values(self, log) -> list[dict]:
         """What each fitted norm would learn from ``log``, one dict per norm (in :meth:`fit`'s order).
 
-        ``values`` (the usable training values, log order), ``keys`` (their ``per`` codes, -1 missing),
+        ``per`` (the key field), ``values`` (the usable training values, log order), ``keys`` (their ``per`` codes, -1 missing),
         ``labels`` (what those codes stand for) and ``student`` (student codes of the values). Values
         gathered this way from logs of disjoint students, put in the combined log's order and keyed
         by shared labels, give :meth:`fit_values` the state :meth:`fit` learns on the combined log.
@@ -418,7 +418,7 @@ class Program:
             use = ~np.isnan(inputs["values"])
             if inputs["among"] is not None:
                 use &= inputs["among"]
-            out.append({"values": inputs["values"][use], "keys": inputs["keys"][use],
+            out.append({"per": call.arg("per"), "values": inputs["values"][use], "keys": inputs["keys"][use],
                         "labels": log.categories(call.arg("per")), "student": log.values("student")[use]})
         return out
 
