@@ -81,6 +81,7 @@ class PartitionWriter:
         self.n_partitions = int(n_partitions)
         self.log_options = dict(log_options or {})
         self._students: list[pd.DataFrame] = []
+        self._seen: set[str] = set()
         self._columns: dict | None = None
         self._chunks = 0
 
@@ -96,14 +97,16 @@ class PartitionWriter:
                 raise LogSchemaError(f"PartitionWriter.write: the events have no column {name!r}; name it or "
                                      "give log_options={'columns': {...}}.")
         counts = frame[student].value_counts(sort=False, dropna=False)
+        counts = counts[counts > 0]  # a categorical column lists its unused categories too
         if counts.index.isna().any():
             raise LogSchemaError(f"PartitionWriter.write: {int(counts[counts.index.isna()].sum())} events have "
                                  "no student; every event needs one to be placed in a partition.")
-        seen = pd.concat([s["student"] for s in self._students]) if self._students else pd.Series([], dtype=object)
-        again = pd.Index(counts.index.astype(str)).intersection(pd.Index(seen.astype(str)))
-        if len(again):
-            raise LogSchemaError(f"PartitionWriter.write: students {list(again[:5])!r} were written in an "
+        text = [str(s) for s in counts.index]
+        again = [s for s in text if s in self._seen]
+        if again:
+            raise LogSchemaError(f"PartitionWriter.write: students {again[:5]!r} were written in an "
                                  "earlier chunk; write all of a student's events in one chunk.")
+        self._seen.update(text)
         part = student_partition(frame[student], self.n_partitions)
         self._students.append(pd.DataFrame({"student": counts.index.to_numpy(), "events": counts.to_numpy(),
                                             "partition": student_partition(counts.index, self.n_partitions)}))
@@ -226,6 +229,7 @@ class DistributedLog:
 
     def __init__(self, path, *, storage_options: dict | None = None):
         self.path, self.storage_options = str(path), storage_options
+        require("pyarrow")  # pandas reads the Parquet files through it
         fs, root = _filesystem(path, storage_options)
         if not fs.exists(posixpath.join(root, MANIFEST)):
             raise LogSchemaError(f"DistributedLog: {self.path!r} has no {MANIFEST}; it is not a dataset written "
