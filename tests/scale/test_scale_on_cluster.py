@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 
+import joblib
 import numpy as np
 import pandas as pd
 import pytest
@@ -125,17 +126,39 @@ def test_a_fitted_transformer_scores_the_same_on_the_cluster_as_bound_locally(cl
     pd.testing.assert_frame_equal(scale.transform(here, dlog, units, client=client), here.transform(units))
 
 
+EVALUATION = {"cv": 2, "n_boot": 30, "random_state": 0, "learning_curve": (0.5, 1.0), "ablation": False,
+              "mined": {"families": ["volume", "correctness", "timing", "mastery"],
+                        "bkt_options": {"n_restarts": 1, "max_iter": 15}}}
+
+
+def test_the_one_machine_fold_loop_runs_on_the_cluster_through_joblib(client, data):
+    log, _, _, _ = data
+    _, windows = simulated()
+    units = windows[["student", "start", "end", "label"]]
+    options = {**EVALUATION, "transfer": False}
+    here, oof_here, _ = compute_incremental_value(log, units, "label", demo_rules_path(), **options)
+    distributed = pytest.importorskip("distributed")
+    with joblib.parallel_config(backend="dask", client=client), distributed.get_task_stream(client) as stream:
+        there, oof_there, _ = compute_incremental_value(log, units, "label", demo_rules_path(), n_jobs=2, **options)
+    assert any("run_task" in str(task["key"]) for task in stream.data), "the folds did not run as cluster tasks"
+    for results in (here, there):
+        results.pop("timing")
+    assert json.dumps(there, sort_keys=True, default=str) == json.dumps(here, sort_keys=True, default=str)
+    pd.testing.assert_frame_equal(oof_there, oof_here)
+
+
 def test_the_evaluation_report_equals_one_machine(client, data):
     log, dlog, _, _ = data
     _, windows = simulated()
     units = windows[["student", "start", "end", "label"]]
-    options = {"cv": 2, "n_boot": 30, "random_state": 0, "learning_curve": (0.5, 1.0), "ablation": False,
-               "mined": {"families": ["volume", "correctness", "timing", "mastery"],
-                         "bkt_options": {"n_restarts": 1, "max_iter": 15}}}
+    options = EVALUATION
     # One machine runs the folds one after another; the cluster runs two fold tasks at once.
     here, oof_here, transfer_here = compute_incremental_value(log, units, "label", demo_rules_path(), **options)
-    there, oof_there, transfer_there = scale.evaluate.compute_incremental_value(
-        dlog, units, "label", demo_rules_path(), client=client, n_jobs=2, **options)
+    distributed = pytest.importorskip("distributed")
+    with distributed.get_task_stream(client) as stream:
+        there, oof_there, transfer_there = scale.evaluate.compute_incremental_value(
+            dlog, units, "label", demo_rules_path(), client=client, n_jobs=2, **options)
+    assert any("run_task" in str(task["key"]) for task in stream.data), "the folds did not run as cluster tasks"
     for results in (here, there):
         results.pop("timing")
     assert json.dumps(there, sort_keys=True, default=str) == json.dumps(here, sort_keys=True, default=str)
