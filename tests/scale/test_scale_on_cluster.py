@@ -164,3 +164,40 @@ def test_the_evaluation_report_equals_one_machine(client, data):
     assert json.dumps(there, sort_keys=True, default=str) == json.dumps(here, sort_keys=True, default=str)
     pd.testing.assert_frame_equal(oof_there, oof_here)
     pd.testing.assert_frame_equal(transfer_there, transfer_here)  # folds holding out each school
+
+
+def test_datetime_times_agree_to_rounding_of_the_time_axis(client, tmp_path):
+    from rulefeat.simulate import tutor_logs
+    sim = tutor_logs(16, seed=9)
+    log = EventLog(sim.events)
+    dlog = scale.write_partitioned(sim.events, tmp_path / "dated", 3)
+    units = sim.windows[["student", "start", "end"]]
+    here = LogFeatures(log, families=["volume", "timing", "sequence"]).fit(units)
+    there = scale.transform(here, dlog, units, client=client)
+    # Each partition counts seconds from its own earliest event (docs/scale.md), so only rounding differs.
+    np.testing.assert_allclose(there.to_numpy(), here.transform(units).to_numpy(), rtol=1e-9, atol=1e-6)
+
+
+def test_bad_inputs_are_refused_by_name(client, data, tmp_path):
+    from rulefeat.errors import ParameterError, UnitError
+    log, dlog, units, train = data
+    with pytest.raises(ParameterError, match="must be a RuleFeatures or LogFeatures. Got str"):
+        scale.fit("rules", dlog, train, client=client)
+    with pytest.raises(UnitError, match="X has no 'student' column"):
+        scale.fit(RuleFeatures(None, demo_rules_path()), dlog, train.rename(columns={"student": "who"}),
+                  client=client)
+    with pytest.raises(UnitError, match="none of the students in X is in the event log"):
+        scale.fit(RuleFeatures(None, demo_rules_path()), dlog, train.assign(student="nobody"), client=client)
+    fitted = RuleFeatures(log, demo_rules_path()).fit(train)
+    with pytest.raises(ParameterError, match="'fitted' must be a fitted RuleFeatures or LogFeatures"):
+        scale.transform(RuleFeatures(None, demo_rules_path()), dlog, units, client=client)
+    with pytest.raises(ParameterError, match="'output' parameter of rulefeat.scale.transform"):
+        scale.transform(fitted, dlog, units, client=client, output="csv")
+    with pytest.raises(ParameterError, match="needs path="):
+        scale.transform(fitted, dlog, units, client=client, output="parquet")
+    with pytest.raises(UnitError, match="not in the event log"):
+        scale.transform(fitted, dlog, units.assign(student="nobody"), client=client)
+    with pytest.raises(UnitError, match="rows name students that are not in the event log"):
+        scale.evaluate.compute_incremental_value(dlog, units.assign(student="nobody", label=np.arange(len(units)) % 2),
+                                                 "label",
+                                                 demo_rules_path(), client=client)
