@@ -405,8 +405,9 @@ class Program:
     def norm_values(self, log) -> list[dict]:
         """What each fitted norm would learn from ``log``, one dict per norm (in :meth:`fit`'s order).
 
-        ``per`` (the key field), ``values`` (the usable training values, log order), ``keys`` (their ``per`` codes, -1 missing),
-        ``labels`` (what those codes stand for) and ``student`` (student codes of the values). Values
+        ``per`` (the key field), ``values`` (the usable training values, log order), ``keys`` (their
+        ``per`` codes, -1 missing), ``labels`` (what those codes stand for) and ``student`` (student
+        codes of the values). Values
         gathered this way from logs of disjoint students, put in the combined log's order and keyed
         by shared labels, give :meth:`fit_values` the state :meth:`fit` learns on the combined log.
         """
