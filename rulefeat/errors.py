@@ -18,6 +18,7 @@ __all__ = [
     "SimulationError",
     "ParameterError",
     "DetectorFileError",
+    "MissingExtraError",
     "RulefeatWarning",
     "LogRepairWarning",
 ]
@@ -65,3 +66,7 @@ class LogRepairWarning(RulefeatWarning):
 
 class DetectorFileError(RulefeatError, ValueError):
     """A saved detector file cannot be read: not a detector file, a newer format, or its content hash differs."""
+
+
+class MissingExtraError(RulefeatError, ImportError):
+    """An optional part of rulefeat needs packages that are not installed; the message names the extra."""

@@ -26,7 +26,7 @@ from .guards import Finding, feature_findings
 from .metrics import kappa_threshold
 from .splits import Fold
 
-__all__ = ["FoldFeatures", "TransformerSource", "PrecomputedSource", "Job", "Task", "Outcome", "run_task",
+__all__ = ["FoldFeatures", "fold_features", "column_names", "dense", "TransformerSource", "PrecomputedSource", "Job", "Task", "Outcome", "run_task",
            "run_all", "variant_columns", "rule_of_column"]
 
 
@@ -83,17 +83,22 @@ class TransformerSource:
             Ztr = est.fit_transform(Xtr, y_train)
             Zte = est.transform(Xte)
             blocks.append((column_names(est, Ztr, prefix), dense(Ztr), dense(Zte)))
-        (mined_names, mtr, mte), (rule_cols, rtr, rte) = blocks
-        rules = {r: [] for r in self.rule_names}
-        for j, name in enumerate(rule_cols):
-            owner = rule_of_column(name.removeprefix("rules__"), self.rule_names)
-            if owner is None:
-                raise EvaluationError(f"incremental_value: the rule features produced a column {name!r} that "
-                                      f"belongs to none of the rules {self.rule_names!r}; columns must be named "
-                                      "'<rule>__<summary>'.")
-            rules[owner].append(len(mined_names) + j)
-        return FoldFeatures(np.hstack([mtr, rtr]), np.hstack([mte, rte]), mined_names + rule_cols,
-                            np.arange(len(mined_names)), {r: np.asarray(c, dtype=np.int64) for r, c in rules.items()})
+        return fold_features(blocks[0], blocks[1], self.rule_names)
+
+
+def fold_features(mined: tuple, rules: tuple, rule_names: list) -> FoldFeatures:
+    """One fold's FoldFeatures from the ``(column names, train matrix, test matrix)`` of both blocks."""
+    (mined_names, mtr, mte), (rule_cols, rtr, rte) = mined, rules
+    owners = {r: [] for r in rule_names}
+    for j, name in enumerate(rule_cols):
+        owner = rule_of_column(name.removeprefix("rules__"), rule_names)
+        if owner is None:
+            raise EvaluationError(f"incremental_value: the rule features produced a column {name!r} that "
+                                  f"belongs to none of the rules {rule_names!r}; columns must be named "
+                                  "'<rule>__<summary>'.")
+        owners[owner].append(len(mined_names) + j)
+    return FoldFeatures(np.hstack([mtr, rtr]), np.hstack([mte, rte]), mined_names + rule_cols,
+                        np.arange(len(mined_names)), {r: np.asarray(c, dtype=np.int64) for r, c in owners.items()})
 
 
 class PrecomputedSource:

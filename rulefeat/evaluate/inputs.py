@@ -138,10 +138,10 @@ def log_populations(log, student_codes: np.ndarray, notes: list) -> tuple[np.nda
     return student_pop[student_codes], names
 
 
-def _populations(units, population, log, log_codes, notes) -> tuple[np.ndarray, list, str | None]:
+def _populations(units, population, log_population, log_codes, notes) -> tuple[np.ndarray, list, str | None]:
     if population is None:
-        if log is not None and log.has("population"):
-            codes, names = log_populations(log, log_codes, notes)
+        if log_population is not None:
+            codes, names = log_population(log_codes, notes)
             return codes, names, None
         return np.full(len(units), -1, dtype=np.int64), [], None
     if not isinstance(population, str) or population not in units.columns:
@@ -155,10 +155,10 @@ def _populations(units, population, log, log_codes, notes) -> tuple[np.ndarray, 
     return codes, names, population
 
 
-def check_units(log, units, unit, where: str = WHERE):
+def check_units(log, units, unit, where: str = WHERE, *, needs_log: bool = True):
     """The unit spec, after checking the log, the units table and its key columns."""
 
-    if not isinstance(log, EventLog):
+    if needs_log and not isinstance(log, EventLog):
         raise EvaluationError(f"{where}: 'log' must be a rulefeat.EventLog. Got {type(log).__name__}.")
     if not isinstance(units, pd.DataFrame) or len(units) == 0:
         size = len(units) if hasattr(units, "__len__") else "?"
@@ -176,17 +176,35 @@ def check_units(log, units, unit, where: str = WHERE):
 def prepare(log, units, y, population, unit, task) -> Inputs:
     """Check the units table (pandas, pyarrow or polars) against the log and the unit, and read y, students and populations."""
     units = _frame.as_pandas(units)
-    spec = check_units(log, units, unit)
+    check_units(log, units, unit)
+
+    def log_codes(labels):
+        return log.student_codes(labels, missing="error", where=WHERE)
+
+    def from_log(codes, notes):
+        return log_populations(log, codes, notes)
+
+    return prepare_units(units, y, population, unit, task, log_codes, from_log if log.has("population") else None)
+
+
+def prepare_units(units: pd.DataFrame, y, population, unit, task, student_codes, log_population) -> Inputs:
+    """:func:`prepare` for events held elsewhere (:mod:`rulefeat.scale`).
+
+    ``student_codes(labels)`` returns the units' student codes, raising for students without events;
+    ``log_population(codes, notes)`` returns ``(population code per unit, names)`` from the events' own
+    population field, or is None when they have none.
+    """
+    spec = check_units(None, units, unit, needs_log=False)
     values, y_column = read_target(units, y, len(units))
     task, y_coded, positive = resolve_task(values, task)
     X = units.drop(columns=[y_column]) if y_column is not None else units
     X = X.reset_index(drop=True)
     student_labels = X[spec.student]
-    log_codes = log.student_codes(student_labels, missing="error", where=WHERE)
+    codes = student_codes(student_labels)
     notes = _positive_note(task, positive)
-    codes, names, column = _populations(X, population, log, log_codes, notes)
+    pops, names, column = _populations(X, population, log_population, codes, notes)
     students, _ = label_codes(student_labels)
-    return Inputs(X, y_coded, task, students, student_labels.to_numpy(), codes, names, column, notes)
+    return Inputs(X, y_coded, task, students, student_labels.to_numpy(), pops, names, column, notes)
 
 
 def prepare_precomputed(n_units: int, y, students, population, task) -> Inputs:

@@ -73,7 +73,7 @@ def _e_step(correct, bounds, s_lo, s_hi, p, ratio):
 
 
 @njit(cache=True, nogil=True)
-def _m_step(p, stats, n_seq, n_rows, n_right, lo, hi):
+def m_step(p, stats, n_seq, n_rows, n_right, lo, hi):
     """Box-constrained M-step: each closed-form maximiser clipped to its bounds.
 
     Each parameter's expected complete-data log-likelihood is a separate
@@ -95,6 +95,25 @@ def _m_step(p, stats, n_seq, n_rows, n_right, lo, hi):
     for k in range(4):
         new[k] = min(max(new[k], lo[k]), hi[k])
     return new
+
+
+@njit(cache=True, nogil=True)
+def expected_counts(correct, bounds, task_lo, task_hi, params):
+    """E-step of every task at its own parameters: rows ``(ll, g_first, g_last, g_all, g_right)``.
+
+    The same sums :func:`em_fit` computes per iteration, exposed so that the counts of
+    disjoint sets of sequences (students in different partitions) can be added up.
+    """
+    n_tasks = task_lo.shape[0]
+    out = np.zeros((n_tasks, 5))
+    longest = 1
+    for k in range(n_tasks):
+        longest = max(longest, bounds[task_hi[k]] - bounds[task_lo[k]])
+    ratio = np.empty(longest)
+    for k in range(n_tasks):
+        ll, a, b, c, d = _e_step(correct, bounds, task_lo[k], task_hi[k], params[k], ratio)
+        out[k, 0], out[k, 1], out[k, 2], out[k, 3], out[k, 4] = ll, a, b, c, d
+    return out
 
 
 @njit(cache=True, nogil=True)
@@ -138,7 +157,7 @@ def em_fit(correct, bounds, task_lo, task_hi, inits, lo, hi, max_iter, tol):
                 break
             prev_p = p
             prev_ll = ll
-            p = _m_step(p, stats, n_seq, n_rows, n_right, lo, hi)
+            p = m_step(p, stats, n_seq, n_rows, n_right, lo, hi)
         params[k] = p
         lls[k] = ll
     return params, lls, hist

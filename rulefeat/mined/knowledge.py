@@ -37,30 +37,43 @@ class MasteryState:
 def fit(train: TrainingEvents, settings: Settings) -> MasteryState | None:
     """A BKT model of the training attempts; None when the training students made no judged attempt."""
     log = train.log
-    judged = train.positions[ev.judged_attempts(log)[train.positions]]
-    judged = _budget(log, judged, settings)
+    judged = budget(log, judged_positions(train), settings)
     if not len(judged):
         return None
     options = {**settings.bkt_options, "random_state": settings.random_state}
-    student, skill, correct = _attempt_arrays(log, judged)
+    student, skill, correct = attempt_arrays(log, judged)
     return MasteryState(BKT(**options).fit(student, skill, correct), ev.fitted_labels(log, "skill"))
 
 
-def _budget(log, judged: np.ndarray, settings: Settings) -> np.ndarray:
+def judged_positions(train: TrainingEvents) -> np.ndarray:
+    """Log positions of the training students' attempts with a known outcome."""
+    return train.positions[ev.judged_attempts(train.log)[train.positions]]
+
+
+def budget(log, judged: np.ndarray, settings: Settings) -> np.ndarray:
     """At most ``bkt_max_attempts`` attempts, taking whole students in a seeded random order."""
-    cap = settings.bkt_max_attempts
-    if cap is None or len(judged) <= cap:
+    if settings.bkt_max_attempts is None or len(judged) <= settings.bkt_max_attempts:
         return judged
     student = log.values("student")[judged]
-    ids, counts = np.unique(student, return_counts=True)
-    order = np.random.default_rng(settings.random_state).permutation(len(ids))
-    take = order[np.cumsum(counts[order]) <= cap]
-    keep = np.zeros(len(ids), dtype=bool)
+    _, counts = np.unique(student, return_counts=True)
+    return judged[np.repeat(students_kept(counts, settings), counts)]
+
+
+def students_kept(counts: np.ndarray, settings: Settings) -> np.ndarray:
+    """Which students (in student-code order, with ``counts`` judged attempts each) fit the budget.
+
+    Only needed when the attempts exceed ``bkt_max_attempts``; depends on the counts and the seed
+    alone, so the same choice can be made from per-student counts gathered anywhere.
+    """
+    order = np.random.default_rng(settings.random_state).permutation(len(counts))
+    take = order[np.cumsum(counts[order]) <= settings.bkt_max_attempts]
+    keep = np.zeros(len(counts), dtype=bool)
     keep[take if len(take) else order[:1]] = True
-    return judged[np.repeat(keep, counts)]
+    return keep
 
 
-def _attempt_arrays(log, positions: np.ndarray, skills=None):
+def attempt_arrays(log, positions: np.ndarray, skills=None):
+    """(student, skill, correct) of the attempts at ``positions``, skills coded as in ``skills``."""
     # Skills the model never saw get codes past its own, so each keeps its own sequence (pooled parameters).
     skill = ev.codes_as_fitted(log, "skill", skills, unseen="distinct")
     return log.values("student")[positions], skill[positions], log.values("correct")[positions]
@@ -92,7 +105,7 @@ def _trace(view: UnitView, model: MasteryState):
     log = view.log
     events = view.students_events()
     judged = events[view.judged[events]]
-    trace = model.model.forward(*_attempt_arrays(log, judged, model.skills))
+    trace = model.model.forward(*attempt_arrays(log, judged, model.skills))
     out = []
     for values in trace:
         full = np.full(len(log), np.nan)

@@ -51,7 +51,7 @@ from sklearn.utils.validation import check_is_fitted
 from ..errors import LogSchemaError, ParameterError
 from . import _bkt_kernels
 
-__all__ = ["BKT", "BKTParams", "MasteryTrace"]
+__all__ = ["BKT", "BKTParams", "MasteryTrace", "AttemptBlock"]
 
 #: Every probability is kept in [PROB_FLOOR, 1 - PROB_FLOOR] so no likelihood is 0.
 PROB_FLOOR = 1e-6
@@ -310,6 +310,67 @@ class BKTParams:
         return trace, float(ll)
 
 
+class AttemptBlock:
+    """Training attempts of some students, laid out once for EM: one block's share of :meth:`BKT.fit_expected`.
+
+    Blocks of disjoint students (one per partition of a cluster, say) each give their attempt counts
+    and expected counts; their sums drive one EM that fits the model of all the attempts together.
+    The arrays follow the module's input layout; skill codes must be shared by every block.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(0)
+    >>> student, skill = np.repeat(np.arange(60), 10), np.tile(np.repeat([0, 1], 5), 60)
+    >>> correct = (rng.random(600) < 0.7).astype(np.int8)
+    >>> blocks = [AttemptBlock(student[:300], skill[:300], correct[:300]),
+    ...           AttemptBlock(student[300:], skill[300:], correct[300:])]
+    >>> counts = sum(b.skill_counts(2) for b in blocks)
+    >>> model = BKT(random_state=0).fit_expected(
+    ...     counts, lambda own: sum(b.totals(own) for b in blocks),
+    ...     lambda own, m, p: sum(b.expected(own, m, p) for b in blocks))
+    >>> whole = BKT(random_state=0).fit(student, skill, correct)
+    >>> bool(np.allclose(model.params_.p_learn, whole.params_.p_learn, rtol=1e-9))
+    True
+    """
+
+    def __init__(self, student, skill, correct):
+        student, skill, correct = _check_arrays(student, skill, correct, "AttemptBlock")
+        self._skill = skill
+        self._lay = _Layout.build(student, skill, correct)
+
+    def __len__(self) -> int:
+        return len(self._skill)
+
+    @property
+    def n_skill_codes(self) -> int:
+        """Largest skill code + 1 (0 without skill labels): the length :meth:`BKT.fit` gives its arrays."""
+        known = self._skill[self._skill >= 0]
+        return int(known.max()) + 1 if len(known) else 0
+
+    def skill_counts(self, n_skills: int) -> np.ndarray:
+        """Attempts per skill code ``0 .. n_skills - 1`` (-1 rows are not counted)."""
+        known = self._skill[self._skill >= 0]
+        return np.bincount(known, minlength=n_skills)[:n_skills].astype(np.int64)
+
+    def _ranges(self, own: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        lo, hi = self._lay.skill_range(np.asarray(own, dtype=np.int64))
+        return np.append(lo, 0), np.append(hi, len(self._lay.bounds) - 1)
+
+    def totals(self, own) -> np.ndarray:
+        """(sequences, attempts, correct attempts) of each model: the skills ``own``, then the pooled one."""
+        lo, hi = self._ranges(own)
+        bounds, right = self._lay.bounds, np.concatenate([[0], np.cumsum(self._lay.correct, dtype=np.int64)])
+        return np.column_stack([hi - lo, bounds[hi] - bounds[lo], right[bounds[hi]] - right[bounds[lo]]])
+
+    def expected(self, own, model, params) -> np.ndarray:
+        """Log-likelihood and expected counts of each task (model index, parameters) over this block."""
+        lo, hi = self._ranges(own)
+        model = np.asarray(model, dtype=np.int64)
+        return _bkt_kernels.expected_counts(self._lay.correct, self._lay.bounds, lo[model], hi[model],
+                                            np.ascontiguousarray(params, dtype=np.float64))
+
+
 # ----------------------------------------------------------------------------- estimator
 def _is_int(value) -> bool:
     return isinstance(value, numbers.Integral) and not isinstance(value, bool)
@@ -450,20 +511,93 @@ class BKT(BaseEstimator):
         upper = 1 - PROB_FLOOR
         return (np.full(4, PROB_FLOOR), np.array([upper, upper, self.guess_max, self.slip_max]))
 
-    def _run_em(self, lay: _Layout, model_lo: np.ndarray, model_hi: np.ndarray):
-        """EM from every start of every model; keep each model's best start."""
-        n_models, n_starts = len(model_lo), self.n_restarts
-        lower, upper = self._bounds()
+    def _starts(self, n_models: int) -> np.ndarray:
+        """Starting points, shape (n_models * n_restarts, 4), model-major."""
+        _, upper = self._bounds()
         rng = np.random.default_rng(self.random_state)
         span = upper * (_START_HIGH - _START_LOW)
         # Drawn start-major, so a model's first starts do not change with n_restarts.
-        inits = upper * _START_LOW + span * rng.random((n_starts, n_models, 4)).transpose(1, 0, 2)
-        task_lo, task_hi = np.repeat(model_lo, n_starts), np.repeat(model_hi, n_starts)
-        params, lls, hist = self._em_tasks(lay, task_lo, task_hi, inits.reshape(-1, 4), lower, upper)
+        inits = upper * _START_LOW + span * rng.random((self.n_restarts, n_models, 4)).transpose(1, 0, 2)
+        return inits.reshape(-1, 4)
+
+    def _best_starts(self, params, lls, hist):
+        n_starts = self.n_restarts
+        n_models = len(lls) // n_starts
         # Ties go to the first start (argmax), so the choice is deterministic.
         best = np.arange(n_models) * n_starts + np.argmax(lls.reshape(n_models, n_starts), axis=1)
         hists = [h[~np.isnan(h)] for h in hist[best]]
         return params[best], lls[best], hists
+
+    def _run_em(self, lay: _Layout, model_lo: np.ndarray, model_hi: np.ndarray):
+        """EM from every start of every model; keep each model's best start."""
+        lower, upper = self._bounds()
+        task_lo, task_hi = np.repeat(model_lo, self.n_restarts), np.repeat(model_hi, self.n_restarts)
+        params, lls, hist = self._em_tasks(lay, task_lo, task_hi, self._starts(len(model_lo)), lower, upper)
+        return self._best_starts(params, lls, hist)
+
+    def fit_expected(self, counts, totals, expected) -> BKT:
+        """Fit by EM from summed expected counts instead of the attempts themselves.
+
+        The same EM as :meth:`fit` (starts, M-step, stopping rule, choice of the best start), with the
+        E-step delegated: for attempts split into :class:`AttemptBlock` s of disjoint students (e.g. one
+        per partition of a cluster), the sums over the blocks of ``counts``, ``totals`` and
+        ``expected`` are exactly what one block of all the attempts gives, up to the order in which
+        floating-point sums are added.
+
+        Parameters
+        ----------
+        counts : array-like of int
+            Training attempts per skill code (:attr:`AttemptBlock.skill_counts`, summed).
+        totals : callable
+            ``totals(own) -> (n_models, 3)`` sequences, attempts and correct attempts of each model:
+            the skills ``own`` (codes with their own model), then the pooled model.
+        expected : callable
+            ``expected(own, model, params) -> (n_tasks, 5)``: log-likelihood and expected counts of
+            task ``k`` (model index ``model[k]``, parameters ``params[k]``), summed over the blocks.
+        """
+        self._validate_params()
+        counts = np.asarray(counts, dtype=np.int64)
+        own = np.flatnonzero(counts >= self.min_attempts)
+        tot = np.asarray(totals(own), dtype=np.int64).reshape(len(own) + 1, 3)
+        if tot[-1, 1] == 0:
+            raise LogSchemaError("BKT.fit_expected: got no attempts; fitting needs at least one.")
+        model = np.repeat(np.arange(len(own) + 1), self.n_restarts)
+        params, lls, hist = self._em_lockstep(self._starts(len(own) + 1), model, tot, own, expected)
+        params, lls, hists = self._best_starts(params, lls, hist)
+        self.params_ = self._make_params(counts, own, params, lls, int(tot[-1, 1]))
+        self.ll_history_ = {int(s): h for s, h in zip(own, hists[:-1], strict=True)}
+        self.pooled_ll_history_ = hists[-1]
+        return self
+
+    def _em_lockstep(self, inits, model, tot, own, expected):
+        """:func:`_bkt_kernels.em_fit`'s loop, every task advancing one iteration per E-step call."""
+        lower, upper = self._bounds()
+        n_tasks, max_iter, tol = len(model), int(self.max_iter), float(self.tol)
+        p, prev_p = inits.copy(), inits.copy()
+        prev_ll = np.full(n_tasks, -np.inf)
+        params, lls = np.empty((n_tasks, 4)), np.empty(n_tasks)
+        hist = np.full((n_tasks, max_iter + 1), np.nan)
+        active = np.arange(n_tasks)
+        for it in range(max_iter + 1):
+            stats = np.asarray(expected(own, model[active], p[active]), dtype=np.float64)
+            going = []
+            for j, k in enumerate(active):
+                n_seq, n_rows, n_right = (int(v) for v in tot[model[k]])
+                ll = stats[j, 0]
+                hist[k, it] = ll
+                if ll < prev_ll[k]:  # rounding noise at convergence: keep the better point (as em_fit)
+                    params[k], lls[k] = prev_p[k], prev_ll[k]
+                elif it == max_iter or ll - prev_ll[k] < tol * n_rows:
+                    params[k], lls[k] = p[k], ll
+                else:
+                    prev_p[k], prev_ll[k] = p[k], ll
+                    p[k] = _bkt_kernels.m_step(p[k].copy(), stats[j, 1:].copy(), n_seq, n_rows, float(n_right),
+                                               lower, upper)
+                    going.append(k)
+            active = np.asarray(going, dtype=np.int64)
+            if not len(active):
+                break
+        return params, lls, hist
 
     def _em_tasks(self, lay, task_lo, task_hi, inits, lower, upper):
         """Run the EM tasks on two threads (the kernel releases the GIL), balanced by rows."""

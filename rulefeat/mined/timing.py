@@ -49,26 +49,41 @@ def pause_name(q: float) -> str:
 
 
 def fit(train: TrainingEvents, settings: Settings) -> TimingState:
+    return fit_gathered(gather(train, settings), settings)
+
+
+def gather(train: TrainingEvents, settings: Settings) -> dict:
+    """What the norms learn from: known durations with their step/skill codes, and known gaps.
+
+    Every statistic fitted from it is a median or quantile, which does not depend on the order of
+    the values, so pieces gathered from logs of disjoint students (codes put on shared labels and
+    concatenated) fit the same state as the combined log (:mod:`rulefeat.scale`).
+    """
     log = train.log
     durations = train.values("duration")
     known = ~np.isnan(durations)
-    durations = durations[known]
+    gap = train.values("gap")
+    return {"duration": durations[known], "gap": gap[~np.isnan(gap)],
+            "codes": {key: train.take(ev.codes(log, key))[known] for key in NORM_KEYS},
+            "labels": {key: ev.fitted_labels(log, key) for key in NORM_KEYS}}
+
+
+def fit_gathered(pieces: dict, settings: Settings) -> TimingState:
+    """The timing state from :func:`gather`'s pieces (codes of ``pieces["labels"]``)."""
+    durations, labels = pieces["duration"], pieces["labels"]
     norms = {}
     for key in NORM_KEYS:
-        n_keys = len(log.categories(key)) if log.has(key) else 0
-        codes = train.take(ev.codes(log, key))[known]
-        ranked, counts = sort_by_key(codes, durations, n_keys)
+        n_keys = 0 if labels[key] is None else len(labels[key])
+        ranked, counts = sort_by_key(pieces["codes"][key], durations, n_keys)
         # log(1 + d) is increasing in d, so one sort by (key, duration) serves both bases.
         for base, scale in (("duration", None), ("log_duration", ev.log_of_duration)):
             values = durations if scale is None else scale(durations)
             medians = key_medians(ranked if scale is None else scale(ranked), counts)
             norms[(base, key)] = _norm(medians, counts, values, settings.min_norm_events)
-    gap = train.values("gap")
-    gap = gap[~np.isnan(gap)]
+    gap = pieces["gap"]
     pauses = {float(q): float(np.quantile(gap, q)) if len(gap) else np.nan
               for q in settings.pause_quantiles}
-    labels = {key: ev.fitted_labels(log, key) for key in NORM_KEYS}
-    return TimingState(norms=norms, pause_seconds=pauses, labels=labels)
+    return TimingState(norms=norms, pause_seconds=pauses, labels=dict(labels))
 
 
 def _norm(medians, counts, values, min_events: int) -> KeyNorm:

@@ -226,28 +226,56 @@ class LogFeatures(UnitTransformer):
         return self._output(self._compute(index, [f for f in self.families_ if f in kept]), X)
 
     def _fit_columns(self, X, y) -> dict:
+        train = self.prepare_fit(X)
+        self.keep_family_state({name: _fit_family(name, train, self.settings_) for name in self.families_})
+        columns = self.candidate_columns(X)
+        self.finish_fit(columns, y, len(X))
+        return columns
+
+    def prepare_fit(self, X: pd.DataFrame) -> TrainingEvents:
+        """The first step of :meth:`fit`: check ``X`` and the parameters; the training students' events.
+
+        :meth:`fit` then learns each family's state from them (:meth:`keep_family_state`), computes
+        :meth:`candidate_columns` on the training units and keeps some (:meth:`finish_fit`).
+        :mod:`rulefeat.scale` runs the same steps with the state learned across a cluster.
+        """
         unit = self._start_fit(X)
-        families = self._family_names()
         self.settings_ = self._settings()
         codes = self.log.student_codes(X[unit.student], missing="empty", where=self._where("fit"))
         train = TrainingEvents(self.log, codes)
         if not len(train.students):
             raise UnitError(f"{self._where('fit')}: none of the students in X is in the event log; "
                             "there is nothing to learn from.")
-        self.families_ = families
+        self.families_ = self._family_names()
         self.log_schema_ = {name: self.log.kind(name) for name in self._fields_read() if self.log.has(name)}
-        self.family_state_ = {name: _fit_family(name, train, self.settings_) for name in families}
-        columns = self._compute(self._resolve(X, "fit"), families)
+        return train
+
+    def keep_family_state(self, state: dict) -> LogFeatures:
+        """Keep ``{family: fitted state}`` (what :attr:`family_state_` holds) for the families in use."""
+        missing = [name for name in self.families_ if name not in state]
+        if missing:
+            raise ParameterError(f"{self._where('keep_family_state')}: no fitted state for the families "
+                                 f"{missing!r}.")
+        self.family_state_ = {name: state[name] for name in self.families_}
+        return self
+
+    def candidate_columns(self, X: pd.DataFrame) -> dict:
+        """``{feature: per-unit array}`` of every candidate feature of ``X``'s units, before selection."""
+        check_is_fitted(self, "family_state_")
+        return self._compute(self._resolve(_frame.as_pandas(X), "fit"), self.families_)
+
+    def finish_fit(self, columns: dict, y, n_units: int) -> LogFeatures:
+        """The last step of :meth:`fit`: choose the kept features from the training units' ``columns``."""
         chosen = select(columns, y, self.max_features, prune=bool(self.prune), where=self._where("fit"))
         if not chosen.kept:
             raise UnitError(f"{self._where('fit')}: every candidate feature is constant or a duplicate "
-                            f"on the {len(X)} training unit(s), so none is left. Fit on more (and more "
+                            f"on the {n_units} training unit(s), so none is left. Fit on more (and more "
                             "varied) units, or pass prune=False.")
         self.candidate_features_ = list(columns)
         self.feature_names_out_ = chosen.kept
         self.dropped_features_ = chosen.dropped
         self.feature_scores_ = chosen.scores
-        return columns
+        return self
 
     def _fields_read(self) -> tuple[str, ...]:
         """Every field the families may read; those the training log has are required when scoring."""

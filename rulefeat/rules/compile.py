@@ -31,7 +31,7 @@ from .ast import (
     show,
 )
 from .check import CheckedSet
-from .functions import FUNCTIONS
+from .functions import FUNCTIONS, norm_inputs
 from .operators import FALSE, INFIX, PREFIX, TRUE, UNKNOWN
 
 __all__ = ["Program", "Evaluator", "Plan", "MAX_WORK"]
@@ -396,9 +396,45 @@ class Program:
         """Learn every norm from ``log``'s events only (the training students' sub-log); returns self."""
         self._check_log(log, "Program.fit")
         ev = Evaluator(log, self, norms=None)
-        self._state = {call: FUNCTIONS[call.func].fit(ev, call, self.min_count) for call in self._norm_calls}
+        self._state = {call: FUNCTIONS[call.func].fit(norm_inputs(ev, call), call, self.min_count)
+                       for call in self._norm_calls}
         # The labels the state's codes stand for (steps, skills, ...; never students: see check.py).
         self._norm_labels = {call: log.categories(call.arg("per")) for call in self._norm_calls}
+        return self
+
+    def norm_values(self, log) -> list[dict]:
+        """What each fitted norm would learn from ``log``, one dict per norm (in :meth:`fit`'s order).
+
+        ``per`` (the key field), ``values`` (the usable training values, log order), ``keys`` (their
+        ``per`` codes, -1 missing), ``labels`` (what those codes stand for) and ``student`` (student
+        codes of the values). Values
+        gathered this way from logs of disjoint students, put in the combined log's order and keyed
+        by shared labels, give :meth:`fit_values` the state :meth:`fit` learns on the combined log.
+        """
+        self._check_log(log, "Program.norm_values")
+        ev = Evaluator(log, self, norms=None)
+        out = []
+        for call in self._norm_calls:
+            inputs = norm_inputs(ev, call)
+            use = ~np.isnan(inputs["values"])
+            if inputs["among"] is not None:
+                use &= inputs["among"]
+            out.append({"per": call.arg("per"), "values": inputs["values"][use], "keys": inputs["keys"][use],
+                        "labels": log.categories(call.arg("per")), "student": log.values("student")[use]})
+        return out
+
+    def fit_values(self, gathered: list[dict]) -> Program:
+        """Fit every norm from values gathered by :meth:`norm_values` (``values``, ``keys``, ``labels``)."""
+        if len(gathered) != len(self._norm_calls):
+            raise EvaluationError(f"Program.fit_values: got values of {len(gathered)} norms; the rules use "
+                                  f"{len(self._norm_calls)}.")
+        state, labels = {}, {}
+        for call, piece in zip(self._norm_calls, gathered, strict=True):
+            inputs = {"values": piece["values"], "keys": piece["keys"], "n_keys": len(piece["labels"]),
+                      "among": None}
+            state[call] = FUNCTIONS[call.func].fit(inputs, call, self.min_count)
+            labels[call] = piece["labels"]
+        self._state, self._norm_labels = state, labels
         return self
 
     def evaluate(self, log) -> dict[str, np.ndarray]:

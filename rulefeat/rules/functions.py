@@ -30,7 +30,7 @@ from . import kernels, norms
 from .ast import BOOL, NUMBER, Apply
 from .operators import FALSE, TRUE, UNKNOWN
 
-__all__ = ["Param", "Function", "FUNCTIONS", "REQUIRED", "SCOPES"]
+__all__ = ["Param", "Function", "FUNCTIONS", "REQUIRED", "SCOPES", "norm_inputs"]
 
 SCOPES = ("student", "session", "problem", "step")
 
@@ -58,7 +58,8 @@ class Function:
     ``result`` maps the types of the expression arguments (by parameter name)
     to the call's type; ``check`` returns an error text for argument
     combinations the kinds alone cannot refuse (or ``None``); ``fit`` (fitted
-    functions only) learns the call's state from a training log's evaluator.
+    functions only) learns the call's state from the training values
+    :func:`norm_inputs` reads (so values gathered from many logs fit the same way).
     """
 
     name: str
@@ -124,18 +125,19 @@ def _first(ev, call: Apply) -> np.ndarray:
     return kernels.first(None if cond is None else ev.array(cond), ev.groups(call.arg("within")))
 
 
-def _norm_inputs(ev, call: Apply) -> dict:
+def norm_inputs(ev, call: Apply) -> dict:
+    """What a fitted function learns from: ``values``, ``keys`` (codes of ``per``), ``n_keys``, ``among``."""
     among, per = call.arg("among"), call.arg("per")
     return {"values": ev.array(call.arg("field")), "keys": ev.log.values(per), "n_keys": ev.n_keys(per),
             "among": None if among is None else ev.array(among) == TRUE}
 
 
-def _fit_typical(ev, call: Apply, min_count: int) -> dict:
-    return norms.fit_typical(**_norm_inputs(ev, call), q=call.arg("q"), min_count=min_count)
+def _fit_typical(inputs: dict, call: Apply, min_count: int) -> dict:
+    return norms.fit_typical(**inputs, q=call.arg("q"), min_count=min_count)
 
 
-def _fit_zscore(ev, call: Apply, min_count: int) -> dict:
-    return norms.fit_zscore(**_norm_inputs(ev, call), min_count=min_count)
+def _fit_zscore(inputs: dict, call: Apply, min_count: int) -> dict:
+    return norms.fit_zscore(**inputs, min_count=min_count)
 
 
 def _typical(ev, call: Apply) -> np.ndarray:

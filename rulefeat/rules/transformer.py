@@ -111,14 +111,25 @@ class RuleFeatures(UnitTransformer):
     def fit(self, X: pd.DataFrame, y=None) -> RuleFeatures:
         """Compile the rules and learn their norms from the training students' events."""
         X = _frame.as_pandas(X)
-        self._start_fit(X)
-        ruleset = as_ruleset(self.rules)
-        program = ruleset.bind(self.log, min_count=int(self.min_count))
-        program.fit(self._training_log(X))
+        program = self.prepare_fit(X)
+        return self.finish_fit(program.fit(self._training_log(X)))
+
+    def prepare_fit(self, X: pd.DataFrame):
+        """The first half of :meth:`fit`: check ``X`` and compile the rules against the bound log's schema.
+
+        Returns the unfitted :class:`~rulefeat.rules.compile.Program`; fit its norms (``program.fit``
+        on the training log, or ``program.fit_values`` on values gathered elsewhere, as
+        :mod:`rulefeat.scale` does) and hand it to :meth:`finish_fit`.
+        """
+        self._start_fit(_frame.as_pandas(X))
+        return as_ruleset(self.rules).bind(self.log, min_count=int(self.min_count))
+
+    def finish_fit(self, program) -> RuleFeatures:
+        """The second half of :meth:`fit`: keep the fitted ``program`` and name the output columns."""
         self.program_ = program
         self.log_schema_ = {"time": "number", **program.schema}
         self._fired_cache = None
-        self.selected_ = self._selected(ruleset)
+        self.selected_ = self._selected(program.rules)
         self.feature_names_out_ = [f"{name}__{summary}" for name in self.selected_
                                    for summary in program.report[name]]
         return self

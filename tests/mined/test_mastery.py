@@ -12,7 +12,7 @@ from sklearn.exceptions import NotFittedError
 
 import rulefeat.mastery as mastery
 from rulefeat.errors import LogSchemaError, RulefeatError
-from rulefeat.mined.mastery import BKT, BKTParams
+from rulefeat.mined.mastery import BKT, AttemptBlock, BKTParams
 
 TRUE = (0.3, 0.15, 0.2, 0.08)  # p_init, p_learn, p_guess, p_slip of the simulated skill
 
@@ -301,3 +301,47 @@ def test_bad_parameter_values_are_refused():
                   0.5, 0.1, 0.2, 0.1)
     with pytest.raises(RulefeatError, match=r"one length; got \{'p_init': 2, 'p_learn': 1"):
         BKTParams([0.5, 0.5], [0.1], [0.2], [0.1], [True], [9], [0.0], 0.5, 0.1, 0.2, 0.1)
+
+
+def _attempts(seed: int = 1, n_students: int = 240):
+    rng = np.random.default_rng(seed)
+    student = np.repeat(np.arange(n_students), 12)
+    skill = rng.integers(-1, 5, len(student))
+    correct = (rng.random(len(student)) < 0.6).astype(np.int8)
+    return student, skill, correct
+
+
+def _fit_blocks(blocks, **options):
+    n_codes = max(b.n_skill_codes for b in blocks)
+    return BKT(**options).fit_expected(sum(b.skill_counts(n_codes) for b in blocks),
+                                       lambda own: sum(b.totals(own) for b in blocks),
+                                       lambda own, model, params: sum(b.expected(own, model, params) for b in blocks))
+
+
+def test_fit_expected_on_one_block_is_fit_to_the_bit():
+    student, skill, correct = _attempts()
+    whole = BKT(random_state=3, n_restarts=2).fit(student, skill, correct)
+    summed = _fit_blocks([AttemptBlock(student, skill, correct)], random_state=3, n_restarts=2)
+    for name in ("p_init", "p_learn", "p_guess", "p_slip", "log_likelihood", "n_attempts", "has_own_model"):
+        np.testing.assert_array_equal(getattr(summed.params_, name), getattr(whole.params_, name), err_msg=name)
+    assert summed.params_.pooled == whole.params_.pooled
+    assert {k: len(v) for k, v in summed.ll_history_.items()} == {k: len(v) for k, v in whole.ll_history_.items()}
+
+
+def test_fit_expected_over_blocks_of_disjoint_students_agrees_to_rounding():
+    student, skill, correct = _attempts(seed=4)
+    whole = BKT(random_state=0).fit(student, skill, correct)
+    cuts = [0, 600, 1500, 2400, len(student)]  # student boundaries (12 attempts each)
+    blocks = [AttemptBlock(student[a:b], skill[a:b], correct[a:b]) for a, b in zip(cuts, cuts[1:], strict=False)]
+    summed = _fit_blocks(blocks, random_state=0)
+    # Only the order of the floating-point additions differs (per block, then across blocks).
+    for name in ("p_init", "p_learn", "p_guess", "p_slip"):
+        np.testing.assert_allclose(getattr(summed.params_, name), getattr(whole.params_, name), rtol=1e-9)
+    np.testing.assert_array_equal(summed.params_.n_attempts, whole.params_.n_attempts)
+    assert summed.pooled_ll_history_.shape == whole.pooled_ll_history_.shape
+
+
+def test_fit_expected_without_attempts_is_refused():
+    empty = AttemptBlock(np.zeros(0, int), np.zeros(0, int), np.zeros(0, int))
+    with pytest.raises(LogSchemaError, match="BKT.fit_expected: got no attempts"):
+        _fit_blocks([empty])

@@ -30,7 +30,7 @@ from ..splits import check_splitter, population_folds, student_folds
 from ..transformers import mined_transformer, rules_transformer
 from . import assemble as _assemble
 
-__all__ = ["incremental_value", "incremental_value_precomputed", "make_detector"]
+__all__ = ["incremental_value", "incremental_value_precomputed", "make_detector", "evaluate_inputs"]
 
 ALTERNATIVES = ("greater", "two-sided")
 
@@ -103,6 +103,8 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
               notes, command, t0):
     """Run every fold and assemble the results dict and the out-of-fold tables."""
     tasks, cv_folds, pop_folds = _tasks(inputs, settings, seeds)
+    if hasattr(source, "for_tasks"):  # a source that computes every fold's features up front (rulefeat.scale)
+        source = source.for_tasks(tasks, inputs.y)
     workers, threads = thread_budget(n_jobs, len(tasks))
     if model is None:
         n_train = np.mean([len(t.fold.train) for t in tasks])
@@ -139,17 +141,33 @@ def compute_incremental_value(log, units, y, rules, *, model=None, cv=5, repeats
                               transfer=True, task="auto", command=None):
     """Same as :func:`incremental_value` but returns ``(results, oof, oof_transfer)`` instead of the report."""
     t0 = time.perf_counter()
+    inputs = prepare(log, units, y, population, unit, task)
+    data = {"n_events": len(log), "log": log.summary()}
+    return evaluate_inputs(inputs, log, rules, mined, data, TransformerSource, model=model, cv=cv, repeats=repeats,
+                           unit=unit, n_jobs=n_jobs, random_state=random_state, verbose=verbose, n_boot=n_boot,
+                           alternative=alternative, learning_curve=learning_curve, ablation=ablation,
+                           transfer=transfer, command=command, t0=t0)
+
+
+def evaluate_inputs(inputs, log, rules, mined, data: dict, source, *, model=None, cv=5, repeats=1, unit="window",
+                    n_jobs=None, random_state=None, verbose=0, n_boot=1000, alternative="greater",
+                    learning_curve=(0.25, 0.5, 1.0), ablation=True, transfer=True, command=None, t0=None):
+    """The evaluation of checked ``inputs``: ``(results, oof, oof_transfer)``.
+
+    ``source(X, mined, rules, rule_names)`` makes the fold features (:class:`TransformerSource` on one
+    machine); ``log`` is what the transformers read (None when the source brings the events itself, as
+    :func:`rulefeat.scale.incremental_value` does); ``data`` describes the log for the report.
+    """
+    t0 = time.perf_counter() if t0 is None else t0
     settings = _settings(cv, repeats, n_boot, alternative, learning_curve, ablation, transfer, verbose,
                          random_state, unit)
-    inputs = prepare(log, units, y, population, unit, task)
     seeds = Seeds(random_state, settings["repeats"], WHERE)
     rules_tf, ruleset = rules_transformer(rules, log, unit)
     mined_tf = mined_transformer(mined, log, unit, seeds.features)
     info = _rule_info(ruleset)
-    source = TransformerSource(inputs.X, mined_tf, rules_tf, list(ruleset.names))
-    data = {"n_events": len(log), "log": log.summary()}
-    return _evaluate(inputs, source, info, ruleset.text_hash(), list(ruleset.names), model, settings, n_jobs, seeds,
-                     data, [], command, t0)
+    features = source(inputs.X, mined_tf, rules_tf, list(ruleset.names))
+    return _evaluate(inputs, features, info, ruleset.text_hash(), list(ruleset.names), model, settings, n_jobs,
+                     seeds, data, [], command, t0)
 
 
 def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, population=None, unit="window",

@@ -1,0 +1,333 @@
+"""Event logs stored as Parquet datasets partitioned by student, and opened lazily.
+
+Layout of a dataset folder (a local path or any fsspec URL)::
+
+    rulefeat-partitions.json      format, number of partitions, EventLog options, columns
+    students.parquet              student, partition, events  (one row per student)
+    part-00000/chunk-000000.parquet, chunk-000001.parquet, ...
+    part-00001/...
+
+A student's partition is a stable hash of the student label's text (:func:`student_partition`), the same
+in every process and on every machine, so all of a student's events land in one partition and units can
+be sent to the partition holding their student.  Each chunk written is sorted once by (student, time);
+:meth:`DistributedLog.load` turns a partition into an ordinary :class:`~rulefeat.EventLog` wherever it
+runs (contract 9: the same engine on every worker).
+"""
+
+from __future__ import annotations
+
+import json
+import posixpath
+
+import numpy as np
+import pandas as pd
+
+from .. import _frame
+from ..errors import LogSchemaError, ParameterError
+from ..log.eventlog import EventLog
+from .extra import require
+
+__all__ = ["write_partitioned", "PartitionWriter", "DistributedLog", "student_partition", "MANIFEST"]
+
+MANIFEST = "rulefeat-partitions.json"
+STUDENTS = "students.parquet"
+FORMAT = 1
+# pandas' SipHash of the label text with this fixed key: stable across processes, machines and versions.
+_HASH_KEY = "rulefeat-student"  # 16 characters, as SipHash needs
+
+
+def student_partition(students, n_partitions: int) -> np.ndarray:
+    """The partition (0 .. n_partitions - 1) of every student label, from a stable hash of its text."""
+    labels = pd.Series(students).astype(str).to_numpy(dtype=object)
+    hashed = pd.util.hash_array(labels, hash_key=_HASH_KEY, categorize=True)
+    return (hashed % np.uint64(n_partitions)).astype(np.int64)
+
+
+def _filesystem(path, storage_options):
+    fsspec = require("fsspec")
+    return fsspec.core.url_to_fs(str(path), **(storage_options or {}))
+
+
+class PartitionWriter:
+    """Write an event log chunk by chunk (whole students per chunk) into a student-partitioned dataset.
+
+    Use it as a context manager; each :meth:`write` takes a table of events of students not written
+    before, splits it by student partition and appends one sorted Parquet chunk to each partition.
+    Closing writes the manifest and the student table, so a dataset is readable only once complete.
+
+    Parameters
+    ----------
+    path : str or path
+        A folder (created, must be empty or absent) or an fsspec URL.
+    n_partitions : int
+        Number of partitions; a few times the number of workers is a good start.
+    log_options : dict, optional
+        Options of :class:`~rulefeat.EventLog` used for every partition (``columns``, ``time_unit``,
+        ``session_gap``, ...). They are stored in the manifest.
+    storage_options : dict, optional
+        Passed to fsspec for URLs.
+    """
+
+    def __init__(self, path, n_partitions: int, *, log_options: dict | None = None,
+                 storage_options: dict | None = None):
+        if isinstance(n_partitions, bool) or not isinstance(n_partitions, (int, np.integer)) or n_partitions < 1:
+            raise ParameterError(f"The 'n_partitions' parameter of PartitionWriter must be a positive integer. "
+                                 f"Got {n_partitions!r} instead.")
+        self.fs, self.root = _filesystem(path, storage_options)
+        if self.fs.exists(self.root) and self.fs.ls(self.root):
+            raise ParameterError(f"PartitionWriter: {str(path)!r} is not empty; give a new folder so that "
+                                 "no old partition is mixed in.")
+        self.fs.makedirs(self.root, exist_ok=True)
+        self.n_partitions = int(n_partitions)
+        self.log_options = dict(log_options or {})
+        self._students: list[pd.DataFrame] = []
+        self._seen: set[str] = set()
+        self._columns: dict | None = None
+        self._chunks = 0
+
+    def _name(self, field: str) -> str:
+        return self.log_options.get("columns", {}).get(field, field)
+
+    def write(self, events) -> None:
+        """Append the events of some students (a DataFrame, Arrow table or an EventLog)."""
+        frame = self._frame(events)
+        student, time = self._name("student"), self._name("time")
+        for name in (student, time):
+            if name not in frame.columns:
+                raise LogSchemaError(f"PartitionWriter.write: the events have no column {name!r}; name it or "
+                                     "give log_options={'columns': {...}}.")
+        counts = frame[student].value_counts(sort=False, dropna=False)
+        counts = counts[counts > 0]  # a categorical column lists its unused categories too
+        if counts.index.isna().any():
+            raise LogSchemaError(f"PartitionWriter.write: {int(counts[counts.index.isna()].sum())} events have "
+                                 "no student; every event needs one to be placed in a partition.")
+        text = [str(s) for s in counts.index]
+        again = [s for s in text if s in self._seen]
+        if again:
+            raise LogSchemaError(f"PartitionWriter.write: students {again[:5]!r} were written in an "
+                                 "earlier chunk; write all of a student's events in one chunk.")
+        self._seen.update(text)
+        part = student_partition(frame[student], self.n_partitions)
+        self._students.append(pd.DataFrame({"student": counts.index.to_numpy(), "events": counts.to_numpy(),
+                                            "partition": student_partition(counts.index, self.n_partitions)}))
+        self._check_columns(frame)
+        keys = [student, time] if _frame.is_numeric(frame[time]) or _frame.is_datetime(frame[time]) else [student]
+        ordered = frame.assign(_part=part).sort_values(["_part", *keys], kind="stable")
+        bounds = np.searchsorted(ordered["_part"].to_numpy(), np.arange(self.n_partitions + 1))
+        body = ordered.drop(columns="_part")
+        for k in range(self.n_partitions):
+            if bounds[k + 1] > bounds[k]:
+                self._write_chunk(body.iloc[bounds[k]:bounds[k + 1]], k)
+        self._chunks += 1
+
+    def _frame(self, events) -> pd.DataFrame:
+        if isinstance(events, EventLog):
+            if not self.log_options:
+                self.log_options = _options_of(events)
+            return events.to_frame(derived=False).reset_index(drop=True)
+        return _frame.as_pandas(events).reset_index(drop=True)
+
+    def _check_columns(self, frame: pd.DataFrame) -> None:
+        columns = {str(c): str(frame[c].dtype) for c in frame.columns}
+        if self._columns is None:
+            self._columns = columns
+        elif list(columns) != list(self._columns):
+            raise LogSchemaError(f"PartitionWriter.write: this chunk has columns {list(columns)!r}, the first "
+                                 f"had {list(self._columns)!r}; every chunk needs the same columns.")
+
+    def _write_chunk(self, part: pd.DataFrame, k: int) -> None:
+        pq = require("pyarrow.parquet")
+        pa = require("pyarrow")
+        folder = posixpath.join(self.root, f"part-{k:05d}")
+        self.fs.makedirs(folder, exist_ok=True)
+        with self.fs.open(posixpath.join(folder, f"chunk-{self._chunks:06d}.parquet"), "wb") as f:
+            pq.write_table(pa.Table.from_pandas(part, preserve_index=False), f)
+
+    def close(self) -> None:
+        """Write the student table and the manifest."""
+        pq, pa = require("pyarrow.parquet"), require("pyarrow")
+        students = pd.concat(self._students, ignore_index=True) if self._students else \
+            pd.DataFrame({"student": pd.Series([], dtype=object), "events": [], "partition": []})
+        with self.fs.open(posixpath.join(self.root, STUDENTS), "wb") as f:
+            pq.write_table(pa.Table.from_pandas(students, preserve_index=False), f)
+        manifest = {"format": FORMAT, "n_partitions": self.n_partitions, "log_options": self.log_options,
+                    "columns": self._columns or {}, "chunks": self._chunks,
+                    "events": int(students["events"].sum()), "students": len(students)}
+        with self.fs.open(posixpath.join(self.root, MANIFEST), "w") as f:
+            json.dump(manifest, f, indent=1, default=str)
+
+    def __enter__(self) -> PartitionWriter:
+        return self
+
+    def __exit__(self, kind, value, tb) -> None:
+        if kind is None:
+            self.close()
+
+
+def _options_of(log: EventLog) -> dict:
+    """EventLog options that rebuild ``log``'s events (already renamed and relabelled) the same way."""
+    settings = log.settings
+    options = {"session_gap": settings["session_gap"], "duration_cap": settings["duration_cap"],
+               "duplicates": settings.get("duplicates", "keep")}
+    return {k: v for k, v in options.items() if v is not None}
+
+
+def write_partitioned(events, path, n_partitions: int, *, log_options: dict | None = None,
+                      storage_options: dict | None = None) -> DistributedLog:
+    """Write an event table or an :class:`~rulefeat.EventLog` as a student-partitioned Parquet dataset.
+
+    Parameters
+    ----------
+    events : EventLog, pandas.DataFrame or pyarrow.Table
+        The events. An EventLog is written with its own (canonical) columns and options; a table is
+        written as given and read later with ``log_options``.
+    path : str or path
+        A new folder or an fsspec URL.
+    n_partitions : int
+        Number of partitions.
+    log_options : dict, optional
+        :class:`~rulefeat.EventLog` options for reading the partitions back (for a table).
+    storage_options : dict, optional
+        Passed to fsspec.
+
+    Returns
+    -------
+    DistributedLog
+        The dataset, opened.
+
+    Examples
+    --------
+    >>> import pandas as pd, tempfile
+    >>> events = pd.DataFrame({"student": ["a", "b", "a", "c"], "time": [3.0, 1.0, 1.0, 2.0],
+    ...                        "action": ["attempt", "hint", "hint", "attempt"]})
+    >>> dlog = write_partitioned(events, tempfile.mkdtemp() + "/events", 2)
+    >>> dlog.n_partitions, dlog.n_events, sorted(dlog.students)
+    (2, 4, ['a', 'b', 'c'])
+    >>> sum(len(dlog.load(k)) for k in range(dlog.n_partitions))
+    4
+    """
+    with PartitionWriter(path, n_partitions, log_options=log_options, storage_options=storage_options) as out:
+        out.write(events)
+    return DistributedLog(path, storage_options=storage_options)
+
+
+class DistributedLog:
+    """A student-partitioned event dataset, opened lazily: schema, students and partition map, no events.
+
+    Nothing but the manifest and the student table is read on the client; :meth:`load` builds one
+    partition's :class:`~rulefeat.EventLog` and is what workers run. :mod:`rulefeat.scale`'s
+    ``fit``, ``transform`` and ``incremental_value`` keep each partition's log in the memory of the
+    worker that built it (:meth:`partition_logs`).
+
+    Parameters
+    ----------
+    path : str or path
+        The folder (or fsspec URL) :func:`write_partitioned` / :class:`PartitionWriter` wrote.
+    storage_options : dict, optional
+        Passed to fsspec.
+    """
+
+    def __init__(self, path, *, storage_options: dict | None = None):
+        self.path, self.storage_options = str(path), storage_options
+        require("pyarrow")  # pandas reads the Parquet files through it
+        fs, root = _filesystem(path, storage_options)
+        if not fs.exists(posixpath.join(root, MANIFEST)):
+            raise LogSchemaError(f"DistributedLog: {self.path!r} has no {MANIFEST}; it is not a dataset written "
+                                 "by rulefeat.scale.write_partitioned (or its writer was not closed).")
+        with fs.open(posixpath.join(root, MANIFEST), "r") as f:
+            manifest = json.load(f)
+        if manifest.get("format") != FORMAT:
+            raise LogSchemaError(f"DistributedLog: {self.path!r} has format {manifest.get('format')!r}; this "
+                                 f"version of rulefeat reads format {FORMAT}.")
+        with fs.open(posixpath.join(root, STUDENTS), "rb") as f:
+            table = pd.read_parquet(f)
+        self._manifest = manifest
+        _, self._students = _frame.factorize(table["student"])  # sorted as EventLog sorts its students
+        order = _frame.codes_for(table["student"], self._students)
+        self._partition = np.empty(len(table), dtype=np.int64)
+        self._partition[order] = table["partition"].to_numpy()
+        self._events = np.empty(len(table), dtype=np.int64)
+        self._events[order] = table["events"].to_numpy()
+        self._futures: dict = {}
+
+    def __repr__(self) -> str:
+        return (f"DistributedLog({self.n_events} events, {len(self.students)} students, "
+                f"{self.n_partitions} partitions at {self.path!r})")
+
+    def __getstate__(self) -> dict:
+        state = self.__dict__.copy()
+        state["_futures"] = {}  # futures belong to the client that made them
+        return state
+
+    @property
+    def n_partitions(self) -> int:
+        return int(self._manifest["n_partitions"])
+
+    @property
+    def n_events(self) -> int:
+        return int(self._manifest["events"])
+
+    @property
+    def schema(self) -> dict:
+        """``{column: pandas dtype}`` of the stored events (before the EventLog reads them)."""
+        return dict(self._manifest["columns"])
+
+    @property
+    def log_options(self) -> dict:
+        return dict(self._manifest["log_options"])
+
+    @property
+    def students(self) -> pd.Index:
+        """Every student label, sorted as an EventLog of all the events would number them."""
+        return self._students
+
+    def partition_map(self) -> pd.DataFrame:
+        """One row per student: ``student``, ``partition``, ``events``."""
+        return pd.DataFrame({"student": self._students, "partition": self._partition, "events": self._events})
+
+    def partition_of(self, students) -> np.ndarray:
+        """The partition of every label (by hash, so also for students the dataset does not hold)."""
+        return student_partition(students, self.n_partitions)
+
+    def files(self, k: int) -> list[str]:
+        """The Parquet chunks of partition ``k``, in writing order."""
+        fs, root = _filesystem(self.path, self.storage_options)
+        folder = posixpath.join(root, f"part-{k:05d}")
+        return sorted(fs.glob(posixpath.join(folder, "*.parquet"))) if fs.exists(folder) else []
+
+    def read(self, k: int) -> pd.DataFrame:
+        """Partition ``k``'s events as stored (a worker-side step of :meth:`load`)."""
+        fs, _ = _filesystem(self.path, self.storage_options)
+        parts = []
+        for name in self.files(k):
+            with fs.open(name, "rb") as f:
+                parts.append(pd.read_parquet(f))
+        if not parts:
+            return pd.DataFrame({c: pd.Series([], dtype=object) for c in self.schema})
+        return pd.concat(parts, ignore_index=True) if len(parts) > 1 else parts[0]
+
+    def load(self, k: int) -> EventLog | None:
+        """Partition ``k`` as an :class:`~rulefeat.EventLog` (None when it holds no student)."""
+        if not 0 <= k < self.n_partitions:
+            raise ParameterError(f"DistributedLog.load: partition {k!r} does not exist; there are "
+                                 f"{self.n_partitions} (0 .. {self.n_partitions - 1}).")
+        frame = self.read(k)
+        if not len(frame):
+            return None
+        return EventLog(frame, **self.log_options)
+
+    def partition_logs(self, client) -> list:
+        """One future per partition of its EventLog, built and kept on the workers (once per client)."""
+        key = id(client)
+        if key not in self._futures:
+            self._futures[key] = client.map(_load, [self] * self.n_partitions, range(self.n_partitions),
+                                            pure=False)
+        return self._futures[key]
+
+    def release(self) -> None:
+        """Forget the partition logs kept on the workers (they are freed once no task needs them)."""
+        self._futures.clear()
+
+
+def _load(dlog: DistributedLog, k: int) -> EventLog | None:
+    return dlog.load(k)
