@@ -17,7 +17,7 @@ import warnings
 import joblib
 
 import rulefeat
-from rulefeat.evaluate.engine import demo_rules_path
+from rulefeat.evaluate.value.engine import demo_rules_path
 from rulefeat.simulate import tutor_logs
 
 
