@@ -18,6 +18,8 @@ __all__ = [
     "SimulationError",
     "ParameterError",
     "DetectorFileError",
+    "LiveError",
+    "LateEventError",
     "RulefeatWarning",
     "LogRepairWarning",
 ]
@@ -65,3 +67,11 @@ class LogRepairWarning(RulefeatWarning):
 
 class DetectorFileError(RulefeatError, ValueError):
     """A saved detector file cannot be read: not a detector file, a newer format, or its content hash differs."""
+
+
+class LiveError(RulefeatError, ValueError):
+    """Live scoring cannot take an event or a rule: a rule it cannot bound, a scope reopened, a closed stream."""
+
+
+class LateEventError(LiveError):
+    """An event arrived later than the live scorer's tolerance allows; the message names the event."""

@@ -182,6 +182,17 @@ def _derive(out: Built, session_gap: float, duration_cap: float) -> None:
             out.put(f"{scope}_position", positions(group_ids(f, scope)), "number")
 
 
+def derive_sorted(fields: dict, kinds: dict, *, session_gap: float, duration_cap: float) -> dict:
+    """The derived fields (gap, session, duration, positions) of events already sorted by student and time.
+
+    The same derivation as a log build, for events buffered elsewhere (the live scorer's per-student
+    buffers, contract 9); returns the fields with the derived ones added.
+    """
+    out = Built(fields=dict(fields), kinds=dict(kinds), row=np.arange(len(fields["student"]), dtype=np.int64))
+    _derive(out, session_gap, duration_cap)
+    return out.fields
+
+
 def positions(groups: np.ndarray) -> np.ndarray:
     """1-based order of each event within its group (events already in time order); NaN when ungrouped."""
     order = np.argsort(groups, kind="stable")
