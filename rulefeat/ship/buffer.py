@@ -152,6 +152,7 @@ class StudentBuffer:
         self.fired = np.zeros((n_rules, 0), dtype=bool)  # valid for the first n_final events
         self.n_final = 0
         self.latest = -np.inf
+        self.next_check = 8  # buffer size at which to work out what can be let go
         self.unit_from = 0  # first event of the oldest keyed unit not emitted yet
         self.trimmed_until = -np.inf  # time of the last event dropped from the buffer
         self.closed: dict[str, set] = {}

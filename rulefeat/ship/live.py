@@ -35,7 +35,7 @@ from ..mined.transformer import LogFeatures
 from ..rules.transformer import RuleFeatures
 from ..units import UnitIndex
 from .buffer import BufferLog, Columns, StudentBuffer
-from .reach import reach_of
+from .reach import earliest_read, reach_of
 
 __all__ = ["LiveScorer", "LiveResult", "LIVE_UNITS", "CHECKPOINT_FORMAT"]
 
@@ -184,7 +184,7 @@ class LiveScorer:
         for i, student in enumerate(windows[self.unit.student].tolist()):
             buf = self._buffer(student)
             if start[i] <= buf.trimmed_until:
-                raise UnitError(f"LiveScorer.add_windows: window row {i} (student {student!r}, start {start[i]!r}) "
+                raise UnitError(f"LiveScorer.add_windows: window row {i} (student {student!r}, start {float(start[i])!r}) "
                                 "starts before events the scorer has already let go; register windows before "
                                 "their events arrive.")
             row = np.array([[start[i], end[i], len(self._window_keys)]])
@@ -259,8 +259,9 @@ class LiveScorer:
         late = np.flatnonzero(time < before - self.tolerance)
         if len(late):
             i = late[0]
-            raise LateEventError(f"LiveScorer.feed: event {ids[i]} (student {student!r}, time {time[i]!r}) arrived "
-                                 f"{before[i] - time[i]:g} s behind the student's stream (at {before[i]!r}), more "
+            raise LateEventError(f"LiveScorer.feed: event {ids[i]} (student {student!r}, time {float(time[i])!r}) "
+                                 f"arrived {before[i] - time[i]:g} s behind the student's stream (at "
+                                 f"{float(before[i])!r}), more "
                                  f"than tolerance={self.tolerance:g} s allows; nothing of this call was taken. "
                                  "Raise tolerance or score late data in batch.")
 
@@ -435,7 +436,7 @@ class LiveScorer:
     # -- memory -----------------------------------------------------------------------------------------
     def _trim(self, buf: StudentBuffer) -> None:
         n = len(buf)
-        if n < 8:
+        if n < buf.next_check:  # the bound is worked out again only after the buffer grew by half
             return
         keep = min(self._needed_from(buf), buf.n_final)
         if self.unit.name == "window" and len(buf.windows):
@@ -450,24 +451,12 @@ class LiveScorer:
                 buf.closed.setdefault(name, set()).update(gone)
             buf.session = buf.session[keep:]
             buf.drop(keep)
+        buf.next_check = len(buf) + max(8, len(buf) // 2)
 
     def _needed_from(self, buf: StudentBuffer) -> int:
         """First event a pending or future event may read (the reach bound of docs/live.md), minus one."""
-        n, reach = len(buf), self.reach
-        mark = self._watermark(buf)
-        time_ext = np.append(buf.time, mark)
-        starts = []
-        for scope in reach.groups:
-            codes = buf.session if scope == "session" else buf.cols[scope]
-            known = codes[codes >= 0]
-            starts.append(_group_starts(np.append(codes, known[-1] if len(known) else -1)))
-        s = np.arange(buf.n_final, n + 1)
-        for _ in range(reach.rounds + 1):
-            for g in starts:
-                s = np.minimum(s, g[s])
-            s = np.maximum(s - reach.events, 0)
-            s = np.minimum(s, np.searchsorted(buf.time, time_ext[s] - reach.seconds, side="left"))
-        return max(int(s.min()) - 1, 0)
+        return max(earliest_read(self._program.trees, np.arange(buf.n_final, len(buf) + 1),
+                                 _Reads(self, buf)) - 1, 0)
 
     # -- checkpoints -----------------------------------------------------------------------------------
     def checkpoint(self, path=None) -> bytes:
@@ -504,6 +493,25 @@ class LiveScorer:
         held = sum(len(b) for b in self._buffers.values())
         return (f"LiveScorer({len(self._rule_names)} rules, {self.unit.name} units, {len(self._buffers)} students, "
                 f"{held} events held)")
+
+
+class _Reads:
+    """A student's buffer as :func:`~rulefeat.ship.reach.earliest_read` sees it, with one virtual event
+    at position ``len(buffer)``: the next event to come (at the watermark, in the open groups)."""
+
+    def __init__(self, scorer: LiveScorer, buf: StudentBuffer):
+        self.scorer, self.buf, self.time = scorer, buf, buf.time
+        self._mark, self._starts = scorer._watermark(buf), {}
+
+    def time_at(self, at: np.ndarray) -> np.ndarray:
+        return np.append(self.buf.time, self._mark)[at]
+
+    def group_start(self, scope: str) -> np.ndarray:
+        if scope not in self._starts:
+            codes = self.buf.session if scope == "session" else self.buf.cols[scope]
+            known = codes[codes >= 0]
+            self._starts[scope] = _group_starts(np.append(codes, known[-1] if len(known) else -1))
+        return self._starts[scope]
 
 
 def _by_student(students: list) -> dict:

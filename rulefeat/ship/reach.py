@@ -21,18 +21,22 @@ what the rule reads             history needed at an event (``within`` = scope S
 ``typical``, ``zscore``         nothing beyond the event (the norms are fitted state)
 ==============================  ==============================================================
 
-Nested calls add up: the argument of ``prev`` is itself evaluated at the earlier events, so their
-own needs start from there.  :class:`Reach` keeps the sums (conservative, never too little).
+Nested calls compose: the argument of ``prev`` is itself evaluated at the earlier events, so its own
+needs start from there.  :class:`Reach` is the static summary (what to refuse, how far to look
+ahead); :func:`earliest_read` walks the same table over a student's buffer to find the first event
+any pending or future event can still read, rule by rule and path by path.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 
+import numpy as np
+
 from ..errors import LiveError
 from ..rules.ast import Apply, Field, Node, RuleRef, show
 
-__all__ = ["Reach", "reach_of", "CLOSING_SCOPES"]
+__all__ = ["Reach", "reach_of", "earliest_read", "CLOSING_SCOPES"]
 
 #: Scopes whose groups close (the student moves on to another step / problem, or a session ends).
 CLOSING_SCOPES = ("session", "problem", "step")
@@ -88,6 +92,8 @@ def _reach(node: Node, done: dict, derived_duration: bool) -> Reach:
         return done[node.name]
     if isinstance(node, Field):
         return _field_reach(node.name, derived_duration)
+    if isinstance(node, Apply) and node.func == "typical":
+        return Reach()  # reads the event's key only; its field and 'among' are read when fitting
     inner = Reach()
     for child in node.children():
         inner = inner.merge(_reach(child, done, derived_duration))
@@ -135,3 +141,57 @@ def _back(scope: str, n: int) -> Reach:
     if scope in _EVENT_SCOPES:
         return Reach(events=n)
     return Reach(groups=frozenset([scope]))
+
+
+def earliest_read(trees: dict, seeds: np.ndarray, buffer) -> int:
+    """The first buffered event that evaluating the rules at ``seeds`` (buffer positions) reads.
+
+    ``buffer`` gives ``group_start(scope)`` (per position, the first event of its group),
+    ``time`` and ``derived_duration``.  Every need is non-decreasing in the position it starts
+    from (groups are contiguous runs, windows slide forward), so each argument's needs are taken
+    from the earliest event it is read at.
+    """
+    memo: dict = {}
+    low = [int(seeds.min()) if len(seeds) else 0]
+
+    def visit(node: Node, at: np.ndarray) -> None:
+        key = (node, at.tobytes())
+        if key in memo:
+            return
+        memo[key] = True
+        low[0] = min(low[0], int(at.min()))
+        if isinstance(node, RuleRef):
+            return visit(trees[node.name], at)
+        if isinstance(node, Field):
+            if node.name == "gap":
+                low[0] = min(low[0], int(at.min()) - 1)
+            elif node.name in _POSITIONS:
+                low[0] = min(low[0], int(buffer.group_start(_POSITIONS[node.name])[at].min()))
+            return None
+        if isinstance(node, Apply) and node.func == "typical":
+            return None
+        reads = _read_from(node, at, buffer) if isinstance(node, Apply) else at
+        for child in node.children():
+            visit(child, reads)
+        return None
+
+    for tree in trees.values():
+        visit(tree, np.unique(seeds))
+    return max(low[0], 0)
+
+
+def _read_from(call: Apply, at: np.ndarray, buffer) -> np.ndarray:
+    """The earliest position each position's call reads its arguments at (as one-element array)."""
+    func = call.func
+    scope = call.arg("within") if "within" in dict(call.params) else None
+    if func == "prev" and scope in _EVENT_SCOPES:
+        first = at - call.arg("n")
+    elif func == "count_recent" and call.arg("seconds") is not None:
+        first = np.searchsorted(buffer.time, buffer.time_at(at) - float(call.arg("seconds")), side="left")
+    elif func == "count_recent" and scope in _EVENT_SCOPES:
+        first = at - (call.arg("actions") - 1)
+    elif func in ("prev", "count_recent", "count_before", "streak", "first"):
+        first = buffer.group_start(scope)[at]
+    else:
+        first = at
+    return np.array([max(int(np.min(first)), 0)])
