@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from .. import _frame
 from ..errors import LiveError
 from ..log import derive
 
@@ -71,9 +72,8 @@ class Columns:
         """``{field: list of raw values}`` of the fields used, from a dict, a list of dicts or a DataFrame."""
         if isinstance(events, dict):
             return {k: [v] for k, v in events.items() if k in self.kinds or k in ("student", "time")}
-        if isinstance(events, pd.DataFrame):
-            return {str(c): (events[c] if self.kinds.get(str(c)) == "category" else events[c].tolist())
-                    for c in events.columns if str(c) in self.kinds or str(c) in ("student", "time")}
+        if isinstance(events, pd.DataFrame):  # columns stay Series: converted whole, not value by value
+            return {str(c): events[c] for c in events.columns if str(c) in self.kinds or str(c) in ("student", "time")}
         if isinstance(events, (list, tuple)):
             if not all(isinstance(e, dict) for e in events):
                 raise LiveError("LiveScorer.feed: events must be a dict, a list of dicts or a DataFrame of the "
@@ -89,14 +89,19 @@ class Columns:
             if name not in raw:
                 raise LiveError(f"LiveScorer.feed: the events have no {name!r} field (event {first_id} on); "
                                 f"every event needs 'student', 'time' and 'action'. Fields given: {sorted(raw)!r}.")
-        out = {"student": raw["student"], "time": self.time_values(raw["time"], "time", first_id)}
+        student = raw["student"]
+        out = {"student": student.tolist() if isinstance(student, pd.Series) else student,
+               "time": self.time_values(raw["time"], "time", first_id)}
         for name, kind in self.kinds.items():
             values = raw.get(name, [None] * n)
             if kind == "category":
                 out[name] = self._codes(name, values, n)
             elif kind == "bool":
                 out[name] = self._bools(name, values, first_id)
+            elif isinstance(values, pd.Series) and _frame.is_number_dtype(values.dtype):
+                out[name] = _frame.to_float(values)
             else:
+                values = values.tolist() if isinstance(values, pd.Series) else values
                 out[name] = np.array([np.nan if is_missing(v) else v for v in values], dtype=np.float64)
         bad = [i for i, s in enumerate(out["student"]) if is_missing(s)]
         if bad:
@@ -113,8 +118,18 @@ class Columns:
 
     def time_values(self, values, what: str, first_id: int | None = None) -> np.ndarray:
         """Times as float seconds on the live axis (numbers as given; datetimes as seconds since 1970)."""
+        if isinstance(values, pd.Series) and self.time_kind == "datetime" and _frame.is_datetime(values):
+            ns = _frame.datetime_ns(values)
+            out = np.where(ns == np.iinfo(np.int64).min, np.nan, ns / 1e9)
+            values = None
+        elif isinstance(values, pd.Series) and self.time_kind == "number" and _frame.is_numeric(values):
+            out, values = _frame.to_float(values), None
+        elif isinstance(values, pd.Series):
+            values = values.tolist()
         try:
-            if self.time_kind == "datetime":
+            if values is None:
+                pass
+            elif self.time_kind == "datetime":
                 out = np.array([pd.Timestamp(v).value / 1e9 if not is_missing(v) else np.nan for v in values])
             else:
                 out = np.array([np.nan if is_missing(v) else v for v in values], dtype=np.float64)
@@ -129,6 +144,9 @@ class Columns:
 
     @staticmethod
     def _bools(name, values, first_id) -> np.ndarray:
+        if isinstance(values, pd.Series) and _frame.is_boolean(values):
+            return _frame.bool_codes(values)
+        values = values.tolist() if isinstance(values, pd.Series) else values
         out = np.empty(len(values), dtype=np.int8)
         for i, v in enumerate(values):
             if is_missing(v):

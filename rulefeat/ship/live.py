@@ -35,7 +35,7 @@ from ..mined.transformer import LogFeatures
 from ..rules.transformer import RuleFeatures
 from ..units import UnitIndex
 from .buffer import BufferLog, Columns, StudentBuffer
-from .reach import earliest_read, reach_of
+from .reach import earliest_read, reach_of, read_paths
 
 __all__ = ["LiveScorer", "LiveResult", "LIVE_UNITS", "CHECKPOINT_FORMAT"]
 
@@ -124,6 +124,7 @@ class LiveScorer:
         self._program = self._rules.program_
         self._rule_names = list(self._program.trees)
         self.reach = reach_of(self._program.trees, derived_duration="duration" not in self.given)
+        self._paths = read_paths(self._program.trees)
         self._stored = self._stored_fields()
         self._checked = [f for f in ("step", "problem", "session") if f in self._stored and f in self._scopes()]
         self._columns = Columns(self._stored, self._rules.time_kind_)
@@ -181,16 +182,21 @@ class LiveScorer:
         bad = np.flatnonzero(end < start)
         if len(bad):
             raise UnitError(f"LiveScorer.add_windows: {len(bad)} windows end before they start ({show_rows(bad)}).")
-        for i, student in enumerate(windows[self.unit.student].tolist()):
+        students, firsts, lasts = (windows[k].tolist() for k in keys)
+        rows = np.arange(len(self._window_keys), len(self._window_keys) + len(students))
+        groups = _by_student(students)
+        for student, at in groups.items():  # all checked before any is added
+            gone = self._buffers[student].trimmed_until if student in self._buffers else -np.inf
+            early = at[start[at] <= gone]
+            if len(early):
+                raise UnitError(f"LiveScorer.add_windows: window row {early[0]} (student {student!r}, start "
+                                f"{float(start[early[0]])!r}) starts before events the scorer has already let go; "
+                                "register windows before their events arrive.")
+        for student, at in groups.items():
             buf = self._buffer(student)
-            if start[i] <= buf.trimmed_until:
-                raise UnitError(f"LiveScorer.add_windows: window row {i} (student {student!r}, start {float(start[i])!r}) "
-                                "starts before events the scorer has already let go; register windows before "
-                                "their events arrive.")
-            row = np.array([[start[i], end[i], len(self._window_keys)]])
-            self._window_keys.append((student, windows[keys[1]].iloc[i], windows[keys[2]].iloc[i]))
-            both = np.concatenate([buf.windows, row])
+            both = np.concatenate([buf.windows, np.column_stack([start[at], end[at], rows[at]])])
             buf.windows = both[np.argsort(both[:, 1], kind="stable")]
+        self._window_keys.extend(zip(students, firsts, lasts, strict=True))
 
     def _buffer(self, student) -> StudentBuffer:
         if student not in self._buffers:
@@ -455,8 +461,7 @@ class LiveScorer:
 
     def _needed_from(self, buf: StudentBuffer) -> int:
         """First event a pending or future event may read (the reach bound of docs/live.md), minus one."""
-        return max(earliest_read(self._program.trees, np.arange(buf.n_final, len(buf) + 1),
-                                 _Reads(self, buf)) - 1, 0)
+        return max(earliest_read(self._paths, np.arange(buf.n_final, len(buf) + 1), _Reads(self, buf)) - 1, 0)
 
     # -- checkpoints -----------------------------------------------------------------------------------
     def checkpoint(self, path=None) -> bytes:

@@ -36,7 +36,7 @@ import numpy as np
 from ..errors import LiveError
 from ..rules.ast import Apply, Field, Node, RuleRef, show
 
-__all__ = ["Reach", "reach_of", "earliest_read", "CLOSING_SCOPES"]
+__all__ = ["Reach", "reach_of", "read_paths", "earliest_read", "CLOSING_SCOPES"]
 
 #: Scopes whose groups close (the student moves on to another step / problem, or a session ends).
 CLOSING_SCOPES = ("session", "problem", "step")
@@ -143,55 +143,77 @@ def _back(scope: str, n: int) -> Reach:
     return Reach(groups=frozenset([scope]))
 
 
-def earliest_read(trees: dict, seeds: np.ndarray, buffer) -> int:
+def read_paths(trees: dict) -> list[tuple]:
+    """Every distinct chain of reads from a rule's root to what it reads at the end, found once.
+
+    A chain is a tuple of steps: ``("back", n)`` (n events back), ``("seconds", t)``, ``("group", scope)``
+    (back to the first event of the group), ending with ``("gap",)`` (one more event back) or
+    nothing.  :func:`earliest_read` follows each chain from the positions still pending.
+    """
+    paths: set = set()
+    stack = [(tree, ()) for tree in trees.values()]
+    seen: set = set()
+    while stack:
+        node, path = stack.pop()
+        if (node, path) in seen:
+            continue
+        seen.add((node, path))
+        if isinstance(node, RuleRef):
+            stack.append((trees[node.name], path))
+        elif isinstance(node, Field):
+            if node.name == "gap":
+                paths.add((*path, ("gap",)))
+            elif node.name in _POSITIONS:
+                paths.add((*path, ("group", _POSITIONS[node.name])))
+            else:
+                paths.add(path)
+        elif not (isinstance(node, Apply) and node.func == "typical"):
+            step = _read_step(node) if isinstance(node, Apply) else None
+            longer = path if step is None else (*path, step)
+            paths.add(longer)
+            stack.extend((child, longer) for child in node.children())
+    return sorted(paths, key=repr)
+
+
+def earliest_read(paths: list, seeds: np.ndarray, buffer) -> int:
     """The first buffered event that evaluating the rules at ``seeds`` (buffer positions) reads.
 
-    ``buffer`` gives ``group_start(scope)`` (per position, the first event of its group),
-    ``time`` and ``derived_duration``.  Every need is non-decreasing in the position it starts
-    from (groups are contiguous runs, windows slide forward), so each argument's needs are taken
-    from the earliest event it is read at.
+    ``buffer`` gives ``group_start(scope)`` (per position, the first event of its group) and
+    ``time_at(positions)``.  Each need is non-decreasing in the position it starts from (groups are
+    contiguous runs, windows slide forward), so after the first step a chain follows only the
+    earliest position reached; the first step takes every seed, since an event without a key
+    (a step-less event) belongs to no group.
     """
-    memo: dict = {}
-    low = [int(seeds.min()) if len(seeds) else 0]
-
-    def visit(node: Node, at: np.ndarray) -> None:
-        key = (node, at.tobytes())
-        if key in memo:
-            return
-        memo[key] = True
-        low[0] = min(low[0], int(at.min()))
-        if isinstance(node, RuleRef):
-            return visit(trees[node.name], at)
-        if isinstance(node, Field):
-            if node.name == "gap":
-                low[0] = min(low[0], int(at.min()) - 1)
-            elif node.name in _POSITIONS:
-                low[0] = min(low[0], int(buffer.group_start(_POSITIONS[node.name])[at].min()))
-            return None
-        if isinstance(node, Apply) and node.func == "typical":
-            return None
-        reads = _read_from(node, at, buffer) if isinstance(node, Apply) else at
-        for child in node.children():
-            visit(child, reads)
-        return None
-
-    for tree in trees.values():
-        visit(tree, np.unique(seeds))
-    return max(low[0], 0)
+    low = int(seeds.min()) if len(seeds) else 0
+    for path in paths:
+        at = seeds
+        for step in path:
+            at = _follow(step, at, buffer)
+        low = min(low, int(at.min()) if len(at) else low)
+    return max(low, 0)
 
 
-def _read_from(call: Apply, at: np.ndarray, buffer) -> np.ndarray:
-    """The earliest position each position's call reads its arguments at (as one-element array)."""
+def _read_step(call: Apply):
     func = call.func
     scope = call.arg("within") if "within" in dict(call.params) else None
     if func == "prev" and scope in _EVENT_SCOPES:
-        first = at - call.arg("n")
-    elif func == "count_recent" and call.arg("seconds") is not None:
-        first = np.searchsorted(buffer.time, buffer.time_at(at) - float(call.arg("seconds")), side="left")
-    elif func == "count_recent" and scope in _EVENT_SCOPES:
-        first = at - (call.arg("actions") - 1)
-    elif func in ("prev", "count_recent", "count_before", "streak", "first"):
-        first = buffer.group_start(scope)[at]
+        return ("back", call.arg("n"))
+    if func == "count_recent" and call.arg("seconds") is not None:
+        return ("seconds", float(call.arg("seconds")))
+    if func == "count_recent" and scope in _EVENT_SCOPES:
+        return ("back", call.arg("actions") - 1)
+    if func in ("prev", "count_recent", "count_before", "streak", "first"):
+        return ("group", scope)
+    return None
+
+
+def _follow(step: tuple, at: np.ndarray, buffer) -> np.ndarray:
+    if step[0] == "back":
+        out = at - step[1]
+    elif step[0] == "gap":
+        out = at - 1
+    elif step[0] == "seconds":
+        out = np.searchsorted(buffer.time, buffer.time_at(at) - step[1], side="left")
     else:
-        first = at
-    return np.array([max(int(np.min(first)), 0)])
+        out = buffer.group_start(step[1])[at]
+    return np.array([max(int(np.min(out)), 0)])
