@@ -333,3 +333,42 @@ def test_advance_closes_windows_without_new_events_and_bad_input_is_named():
     scorer.close()
     with pytest.raises(LiveError, match="closed"):
         scorer.feed({"student": "a", "time": 50.0, "action": "attempt"})
+
+
+def _session_units(log: EventLog) -> pd.DataFrame:
+    frame = log.to_frame()
+    return frame.groupby(["student", "session"], observed=True)["time"].min().rename("unit_start").reset_index()
+
+
+@pytest.mark.parametrize("seed", [11, 12, 13])
+def test_live_session_units_equal_batch(seed):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        train = EventLog(random_events(np.random.default_rng(0), 6, 40), session_gap=SESSION_GAP)
+        units = _session_units(train)
+        rules = RuleFeatures(train, DEMO_RULES, unit="session").fit(units[["student", "session"]].astype(object))
+        events = random_events(np.random.default_rng(seed), 3, 60, tolerance=1.0)
+        log = EventLog(events, session_gap=SESSION_GAP)
+        sessions = _session_units(log)
+        batch = rulefeat.bind(rules, log).transform(sessions[["student", "session"]].astype(object))
+    scorer = LiveScorer(rules, tolerance=1.0)
+    outs = replay(scorer, events, [1, 4, 9])
+    table = live_units(outs)
+    assert table["session"].isna().all() and len(table) == len(sessions)  # derived sessions: named by start
+    merged = sessions.join(batch).merge(table, on=["student", "unit_start"], suffixes=("", "_live"))
+    assert len(merged) == len(sessions)
+    for name in batch.columns:
+        assert same(merged[f"{name}_live"], merged[name]), name
+
+
+def test_a_session_closes_when_the_clock_passes_the_session_gap():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        train = EventLog(random_events(np.random.default_rng(0), 6, 40), session_gap=SESSION_GAP)
+        units = _session_units(train)[["student", "session"]].astype(object)
+        rules = RuleFeatures(train, DEMO_RULES, unit="session").fit(units)
+    scorer = LiveScorer(rules)
+    scorer.feed([{"student": "a", "time": t, "action": "hint", "step": "s1"} for t in (0.0, 1.0, 2.0)])
+    assert scorer.advance(SESSION_GAP + 1.0).units.empty  # 59 s after the last event: may go on
+    closed = scorer.advance(SESSION_GAP + 3.0).units
+    assert closed[["student", "unit_start", "n_events", "skimmed_hint__count"]].values.tolist() == [["a", 0.0, 3, 2.0]]
