@@ -89,6 +89,9 @@ class LiveScorer:
         training log (the detector records which fields its log derived).
     session_gap, duration_cap : float, optional
         As in :class:`~rulefeat.EventLog`; default: the training log's values.
+    predict_params : dict, optional
+        Passed to the model's ``predict_proba`` when units close, e.g. ``{"num_threads": 1}`` for
+        LightGBM, whose threads cost more than they save on the few rows of one call.
 
     Examples
     --------
@@ -107,12 +110,13 @@ class LiveScorer:
     """
 
     def __init__(self, detector, *, windows=None, tolerance: float = 0.0, given=None, session_gap=None,
-                 duration_cap=None):
+                 duration_cap=None, predict_params=None):
         self._rules, self._names, self._rest = _parts(detector)
         fitted = getattr(self._rules, "log_settings_", {})
         if given is None:
             given = [f for f in _DERIVABLE if fitted.get(f"{f}_derived") is False]
         self.detector, self.tolerance, self.given = detector, tolerance, tuple(given)
+        self.predict_params = dict(predict_params or {})
         self.session_gap = fitted.get("session_gap", 1800.0) if session_gap is None else session_gap
         self.duration_cap = fitted.get("duration_cap", 600.0) if duration_cap is None else duration_cap
         self._check_options()
@@ -435,7 +439,7 @@ class LiveScorer:
             p = np.full(len(found), np.nan)
             full = sizes > 0  # a unit without events has no score, as bind(...) refuses it
             if full.any():
-                p[full] = self._rest.predict_proba(features[full])[:, 1]
+                p[full] = self._rest.predict_proba(features[full], **self.predict_params)[:, 1]
             table["probability"] = p
         return table
 
@@ -472,7 +476,7 @@ class LiveScorer:
         """
         state = {"format": CHECKPOINT_FORMAT, "detector": self.detector,
                  "options": {"tolerance": self.tolerance, "given": self.given, "session_gap": self.session_gap,
-                             "duration_cap": self.duration_cap},
+                             "duration_cap": self.duration_cap, "predict_params": self.predict_params},
                  "columns": self._columns.labels, "buffers": self._buffers, "window_keys": self._window_keys,
                  "next_id": self._next_id, "clock": self._clock, "closed": self._closed, "repairs": self.repairs}
         data = pickle.dumps(state, protocol=pickle.HIGHEST_PROTOCOL)
