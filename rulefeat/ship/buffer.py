@@ -73,6 +73,11 @@ class Columns:
         if isinstance(events, dict):
             return {k: [v] for k, v in events.items() if k in self.kinds or k in ("student", "time")}
         if isinstance(events, pd.DataFrame):  # columns stay Series: converted whole, not value by value
+            absent = [name for name in ("student", "time", *self.kinds) if name not in events.columns]
+            if absent:
+                raise LiveError(f"LiveScorer.feed: the events table lacks the columns {absent!r}, which the "
+                                "detector reads (a log without them would be refused too). A dict may leave out "
+                                "a field for one event (a missing value); a table needs every column.")
             return {str(c): events[c] for c in events.columns if str(c) in self.kinds or str(c) in ("student", "time")}
         if isinstance(events, (list, tuple)):
             if not all(isinstance(e, dict) for e in events):

@@ -326,6 +326,8 @@ def test_advance_closes_windows_without_new_events_and_bad_input_is_named():
     assert closed[["student", "start", "end", "n_events"]].values.tolist() == [["a", 0.0, 30.0, 1]]
     with pytest.raises(LiveError, match=r"event 1 has correct='maybe'"):
         scorer.feed({"student": "a", "time": 40.0, "action": "attempt", "correct": "maybe"})
+    with pytest.raises(LiveError, match=r"lacks the columns \['correct', 'step'\]"):
+        scorer.feed(pd.DataFrame({"student": ["a"], "time": [41.0], "action": ["hint"]}))
     with pytest.raises(LiveError, match=r"no 'time' field"):
         scorer.feed({"student": "a", "action": "attempt"})
     with pytest.raises(LiveError, match=r"event 1 has a missing time"):
