@@ -374,3 +374,21 @@ def test_a_session_closes_when_the_clock_passes_the_session_gap():
     assert scorer.advance(SESSION_GAP + 1.0).units.empty  # 59 s after the last event: may go on
     closed = scorer.advance(SESSION_GAP + 3.0).units
     assert closed[["student", "unit_start", "n_events", "skimmed_hint__count"]].values.tolist() == [["a", 0.0, 3, 2.0]]
+
+
+def test_a_rules_only_detector_of_make_detector_scores_live_as_in_batch():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        train = EventLog(random_events(np.random.default_rng(0), 6, 40), session_gap=SESSION_GAP)
+        X = _step_units(train)
+        detector = rulefeat.make_detector(train, DEMO_RULES, unit="step", mined=False, random_state=0)
+        detector.fit(X, np.arange(len(X)) % 2)
+        events = random_events(np.random.default_rng(21), 3, 30)
+        log = EventLog(events, session_gap=SESSION_GAP)
+        units = _step_units(log)
+        batch = rulefeat.bind(detector, log).predict_proba(units)[:, 1]
+    assert [name for name, _ in detector.named_steps["features"].transformer_list] == ["rules"]
+    table = live_units(replay(LiveScorer(detector, predict_params={"num_threads": 1}), events, [3]))
+    merged = units.assign(batch=batch).merge(table, on=["student", "step"])
+    assert len(merged) == len(units) and same(merged["probability"], merged["batch"])
+    assert "rules__skimmed_hint__count" in table.columns
