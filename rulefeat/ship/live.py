@@ -49,9 +49,11 @@ _DERIVABLE = ("session", "duration")
 class LiveResult:
     """What one call emitted: events whose firings became final, and units that closed.
 
-    ``event_id`` numbers events in order of arrival (0 for the scorer's first event), ``fired`` maps
-    every rule to a bool array aligned with it; ``units`` has one row per closed unit: its keys,
-    ``n_events``, the rule features and (with a model) ``probability``.
+    ``event_id`` numbers events in order of arrival (0 for the scorer's first event); they are listed
+    student by student, each student's in time order.  ``fired`` maps every rule to a bool array
+    aligned with them; ``units`` has one row per closed unit: its keys (``unit_start``, the time of
+    its first event, for steps, problems and sessions), ``n_events``, the rule features (named as the
+    model saw them) and, with a model, ``probability``.
     """
 
     event_id: np.ndarray
