@@ -4,6 +4,8 @@ from ._version import __version__
 from .errors import (
     DetectorFileError,
     EvaluationError,
+    LateEventError,
+    LiveError,
     LogRepairWarning,
     LogSchemaError,
     MissingExtraError,
@@ -27,7 +29,7 @@ from .log import EventLog, LogIssue, read_events, read_xapi
 from .mined.transformer import LogFeatures
 from .rules import Rule, RuleSet
 from .rules.transformer import RuleFeatures
-from .ship import SavedDetector, bind, load_detector, read_manifest, save_detector
+from .ship import LiveScorer, SavedDetector, bind, load_detector, read_manifest, save_detector
 
 __all__ = [
     "__version__",
@@ -49,6 +51,7 @@ __all__ = [
     "load_detector",
     "read_manifest",
     "SavedDetector",
+    "LiveScorer",
     "RulefeatError",
     "LogSchemaError",
     "UnitError",
@@ -59,6 +62,8 @@ __all__ = [
     "SimulationError",
     "DetectorFileError",
     "MissingExtraError",
+    "LiveError",
+    "LateEventError",
     "RulefeatWarning",
     "LogRepairWarning",
     "GuardWarning",

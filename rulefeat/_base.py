@@ -140,6 +140,9 @@ class UnitTransformer(TransformerMixin, BaseEstimator):
         # What the log looked like, for the saved manifest (no student data: kinds and action labels only).
         self.time_kind_ = self.log.time_kind
         self.action_labels_ = [str(a) for a in self.log.categories("action")]
+        settings = self.log.settings  # how the log derived its fields, for live scoring (no student data)
+        self.log_settings_ = {key: settings[key] for key in
+                              ("session_gap", "duration_cap", "session_derived", "duration_derived")}
         return unit
 
     def _check_table(self, X, unit: Unit, method: str) -> None:

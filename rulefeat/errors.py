@@ -19,6 +19,8 @@ __all__ = [
     "ParameterError",
     "DetectorFileError",
     "MissingExtraError",
+    "LiveError",
+    "LateEventError",
     "RulefeatWarning",
     "LogRepairWarning",
 ]
@@ -70,3 +72,11 @@ class DetectorFileError(RulefeatError, ValueError):
 
 class MissingExtraError(RulefeatError, ImportError):
     """An optional part of rulefeat needs packages that are not installed; the message names the extra."""
+
+
+class LiveError(RulefeatError, ValueError):
+    """Live scoring cannot take an event or a rule: a rule it cannot bound, a scope reopened, a closed stream."""
+
+
+class LateEventError(LiveError):
+    """An event arrived later than the live scorer's tolerance allows; the message names the event."""

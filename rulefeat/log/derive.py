@@ -181,6 +181,17 @@ def _derive(out: Built, session_gap: float, duration_cap: float) -> None:
             out.put(f"{scope}_position", _group_positions(f, scope)[1], "number")
 
 
+def derive_sorted(fields: dict, kinds: dict, *, session_gap: float, duration_cap: float) -> dict:
+    """The derived fields (gap, session, duration, positions) of events already sorted by student and time.
+
+    The same derivation as a log build, for events buffered elsewhere (the live scorer's per-student
+    buffers, contract 9); returns the fields with the derived ones added.
+    """
+    out = Built(fields=dict(fields), kinds=dict(kinds), row=np.arange(len(fields["student"]), dtype=np.int64))
+    _derive(out, session_gap, duration_cap)
+    return out.fields
+
+
 def group_ids(fields: dict, scope: str) -> np.ndarray:
     """Ids of the (student, scope) groups in order of first appearance; -1 where the scope key is missing."""
     if scope == "student":

@@ -105,9 +105,13 @@ class Evaluator:
         Labels are matched as text against the log being evaluated, so a program scores any log
         with the same fields (a step never seen in it matches no event).
         """
-        text = self.log.cached(("text-labels", field), lambda: _frame.text_labels(self.log.categories(field)))
-        codes = _frame.text_codes(text, [str(lbl) for lbl in labels])
-        return np.where(codes >= 0, codes, -2)
+        def compute():
+            text = self.log.cached(("text-labels", field), lambda: _frame.text_labels(self.log.categories(field)))
+            codes = _frame.text_codes(text, [str(lbl) for lbl in labels])
+            return np.where(codes >= 0, codes, -2)
+        if len(labels) > 8:
+            return compute()
+        return self.log.cached(("label-codes", field, tuple(str(lbl) for lbl in labels)), compute)  # rule literals
 
     def translation(self, source: str, target: str) -> np.ndarray:
         """Codes of ``source`` labels in ``target``'s code space (-2: no such label); ends with -1 for missing."""
@@ -129,11 +133,14 @@ class Evaluator:
         per = call.arg("per")
         key = ("norm-keys", per, id(self.program._norm_labels[call]))
         if key not in self._label_cache:
-            codes, current = self.log.values(per), self.log.categories(per)
             fitted = self.program._norm_labels[call]
-            if current is not fitted and not current.equals(fitted):
-                into = _frame.codes_for(current, fitted)
-                codes = np.where(codes >= 0, into[np.maximum(codes, 0)], -1) if len(into) else codes
+
+            def translate():  # labels only, so a log (or a live buffer) keeps it across evaluations
+                current = self.log.categories(per)
+                return None if current is fitted or current.equals(fitted) else _frame.codes_for(current, fitted)
+            codes, into = self.log.values(per), self.log.cached(("norm-codes", per, id(fitted)), translate)
+            if into is not None and len(into):
+                codes = np.where(codes >= 0, into[np.maximum(codes, 0)], -1)
             self._label_cache[key] = codes
         return self._label_cache[key]
 
@@ -345,6 +352,11 @@ class Program:
         # Kinds only: category labels are read from each log evaluated, so the program holds no
         # student ids and scores any log with these fields (contract 8, DEVELOPERS.md).
         return {name: log.kind(name) for name in sorted(used)}
+
+    @property
+    def trees(self) -> dict:
+        """Rule name -> its checked expression tree (rule references as ``RuleRef`` nodes), in rule order."""
+        return {name: self._checked.rules[name].tree for name in self._checked.order}
 
     @property
     def schema(self) -> dict:

@@ -163,10 +163,17 @@ class RuleFeatures(UnitTransformer):
         """One row per row of ``X``: the selected rules' summaries over that unit's events."""
         X = _frame.as_pandas(X)
         agg = self._start_transform(X)
-        fired = self._fired()
+        return self._output(self.summarise(agg, self._fired()), X)
+
+    def summarise(self, agg, fired: dict) -> dict:
+        """``{feature: per-unit array}`` of the selected rules' firings (per event) over ``agg``'s units.
+
+        The one aggregation of firings to unit features, shared by ``transform`` and live scoring
+        (:class:`rulefeat.LiveScorer`, contract 9).
+        """
         columns = {}
         for name in self.selected_:
             table = _summaries(agg, np.asarray(fired[name], dtype=bool))
             for summary in self.program_.report[name]:
                 columns[f"{name}__{summary}"] = table[summary]()
-        return self._output(columns, X)
+        return columns

@@ -7,6 +7,7 @@
 
 from .artefact import FORMAT, FORMAT_VERSION, SavedDetector, load_detector, read_manifest, save_detector
 from .bind import bind, log_params, unit_transformers
+from .live import LiveResult, LiveScorer
 
 __all__ = ["bind", "save_detector", "load_detector", "read_manifest", "SavedDetector", "unit_transformers",
-           "log_params", "FORMAT", "FORMAT_VERSION"]
+           "log_params", "LiveScorer", "LiveResult", "FORMAT", "FORMAT_VERSION"]

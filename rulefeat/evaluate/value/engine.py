@@ -367,8 +367,9 @@ def make_detector(log, rules, *, unit="window", model=None, mined=None, random_s
     unit : str or Unit, default "window"
     model : scikit-learn estimator, optional
         Default :func:`~rulefeat.evaluate.default_model` for ``task`` using every core.
-    mined : dict or transformer, optional
-        As in :func:`incremental_value`.
+    mined : dict, transformer or False, optional
+        As in :func:`incremental_value`; ``False`` leaves mined features out (a rules-only detector,
+        which :class:`~rulefeat.LiveScorer` can run live).
     random_state : int, optional
         Seeds the default model and the default LogFeatures.
     task : {"classification", "regression"}, default "classification"
@@ -380,17 +381,23 @@ def make_detector(log, rules, *, unit="window", model=None, mined=None, random_s
     """
     seeds = Seeds(random_state, 1, WHERE)  # the same seeds incremental_value gives the combined variant
     rules_tf, _ = rules_transformer(rules, log, unit)
+    if mined is False:  # rules only: what live scoring takes (rulefeat.LiveScorer, docs/live.md)
+        union = FeatureUnion([("rules", clone(_refusing(rules_tf, rules)))]).set_output(transform="pandas")
+        return Pipeline([("features", union), ("model", model or default_model(task, seeds.model, available_cores()))])
     mined_tf = mined_transformer(mined, log, unit, seeds.features)
     # A shipped detector refuses units without events (e.g. windows of another log's students) rather than
     # scoring them as empty; transformers given ready-made keep their own setting.
-    if not hasattr(rules, "fit"):
-        rules_tf = rules_tf.set_params(empty_units="error")
+    rules_tf = _refusing(rules_tf, rules)
     if mined is None or isinstance(mined, dict):
         mined_tf = mined_tf.set_params(**{"empty_units": "error", **(mined or {})})
     if model is None:
         model = default_model(task, seeds.model, available_cores())
     union = FeatureUnion([("mined", clone(mined_tf)), ("rules", clone(rules_tf))]).set_output(transform="pandas")
     return Pipeline([("features", union), ("model", model)])
+
+
+def _refusing(rules_tf, rules):
+    return rules_tf if hasattr(rules, "fit") else rules_tf.set_params(empty_units="error")
 
 
 def demo_rules_path() -> Path:
