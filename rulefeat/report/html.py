@@ -157,9 +157,10 @@ def _headline_sentence(report, results: dict) -> str:
     n_folds = (settings.get("n_splits") or 0) * (settings.get("repeats") or 1)
     sided = ("one-sided (the alternative is that the rules improve the detector)"
              if settings.get("alternative") == "greater" else "two-sided")
-    return (f"The headline p-value is the corrected resampled t-test (Nadeau & Bengio 2003) on the {n_folds} "
-            f"per-fold differences in {metric_label(report.primary_metric)} between combined and mined, {sided}; it "
-            "widens the plain fold t-test's variance because training sets overlap between folds.")
+    return (f"The headline interval and p-value both come from the corrected resampled t-test (Nadeau & Bengio "
+            f"2003) on the {n_folds} per-fold differences in {metric_label(report.primary_metric)} between "
+            f"combined and mined, {sided}; it widens the plain fold t-test's variance because training sets "
+            "overlap between folds.")
 
 
 def _effect(report) -> str:
@@ -172,7 +173,8 @@ def _effect(report) -> str:
 def _value_view(report, results: dict, t: dict) -> dict:
     comp = next((c for c in results["comparisons"] if (c["variant"], c["baseline"], c["metric"])
                  == ("combined", "mined", report.primary_metric)), {})
-    return {"headline": _headline_sentence(report, results), "ci_method": comp.get("ci_method") or NA,
+    return {"headline": _headline_sentence(report, results),
+            "ci_method": f"{comp.get('ci_method') or NA}; secondary: {comp.get('boot_method') or NA}",
             "primary": t["primary"].view(), "metrics": t["metrics"].view(),
             "comparisons": t["comparisons"].view()}
 

@@ -80,10 +80,10 @@ def _value_section(report, results: dict, t: dict, images: Mapping[str, str]) ->
     alternative = results["settings"].get("alternative")
     return ["## Incremental value", "", f"**{report.effect()}**", "",
             markdown_table(t["primary"].frame()), "",
-            f"Δ is the variant minus mined in the metric's own units. The headline p is the corrected "
-            f"resampled t-test over folds (Nadeau & Bengio 2003), alternative {alternative!r}; the naive "
-            f"fold t-test ignores the overlap of training sets and is shown only beside it. CI: "
-            f"{comp.get('ci_method') or NA}, on the pooled out-of-fold predictions.", "",
+            f"Δ is the variant minus mined in the metric's own units, the mean over every fold and repeat. "
+            f"The headline interval and p come from one procedure: {comp.get('ci_method') or NA}, alternative "
+            f"{alternative!r}; the naive fold t-test ignores the overlap of training sets and is shown only beside "
+            f"it. Secondary column: {comp.get('boot_method') or NA}, which ignores training-set variability.", "",
             *_image(images, "roc", "ROC curves"),
             "### All metrics", "", markdown_table(t["metrics"].frame()), "",
             "### Differences on every metric", "", markdown_table(t["comparisons"].frame()), ""]

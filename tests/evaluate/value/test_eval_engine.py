@@ -131,8 +131,11 @@ def test_pooled_and_fold_metrics_agree_with_the_oof_table(full):
         folds = [f["auc"] for f in res["folds"] if f["variant"] == v]
         assert res["variants"][v]["folds"]["auc"]["mean"] == pytest.approx(np.mean(folds))
     headline = res["comparisons"][0]
-    assert headline["delta"] == pytest.approx(roc_auc_score(first["y"], first["combined"])
-                                              - roc_auc_score(first["y"], first["mined"]))
+    assert headline["pooled_delta"] == pytest.approx(roc_auc_score(first["y"], first["combined"])
+                                                     - roc_auc_score(first["y"], first["mined"]))
+    # The headline Δ is the mean over every fold and repeat of the per-fold difference.
+    fold_auc = {v: np.array([f["auc"] for f in res["folds"] if f["variant"] == v]) for v in ("mined", "combined")}
+    assert headline["delta"] == pytest.approx(np.mean(fold_auc["combined"] - fold_auc["mined"]))
     assert headline["ci_low"] <= headline["delta"] <= headline["ci_high"] and headline["df"] == 9
     curve = res["learning_curve"][-1]
     assert curve["mined"] == pytest.approx(res["variants"]["mined"]["folds"]["auc"]["mean"])
@@ -324,7 +327,7 @@ def test_folds_that_cannot_be_scored_are_noted():
     assert "has only one class" in text and "has only 1 students (fewer than 3)" in text
     assert all(np.isnan(f["auc"]) for f in res["folds"])
     head = res["comparisons"][0]
-    assert np.isnan(head["p_value"]) and np.isfinite(head["delta"])
+    assert np.isnan(head["p_value"]) and np.isnan(head["delta"]) and np.isfinite(head["pooled_delta"])
 
 
 def test_fold_warnings_are_raised_once_and_noted(sim):
