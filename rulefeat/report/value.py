@@ -365,7 +365,7 @@ class IncrementalValueReport:
             return f"IncrementalValueReport({self.task}, {m}: no combined − mined comparison)"
         lower = " (lower is better)" if m in LOWER_IS_BETTER else ""
         p = comp.get("p_value")
-        p_text = "n/a" if p is None or p != p else ("< 0.001" if p < 0.001 else f"{p:.3f}")
+        p_text = "p = n/a" if p is None or p != p else ("p < 0.001" if p < 0.001 else f"p = {p:.3f}")
         return (f"IncrementalValueReport({METRIC_LABELS.get(m, m)} combined − mined = "
-                f"{signed(comp.get('delta'))}{lower}, p = {p_text}; {len(self._results['rules'])} rules, "
+                f"{signed(comp.get('delta'))}{lower}, {p_text}; {len(self._results['rules'])} rules, "
                 f"{self._results['data'].get('n_students')} students)")

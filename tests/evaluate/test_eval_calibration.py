@@ -7,7 +7,7 @@ standardised features, 5-fold student-grouped CV, one repeat.
 * Null: hint skimming has label link 0 (it still happens at its usual rate); the headline test (corrected
   resampled t-test, one-sided) must reject at alpha = 0.05 in at most 8 % of 200 datasets.
 * Planted effect: hint skimming has label link 4 (and twice its base rate); power at alpha = 0.05 must be >= 0.8
-  over 100 datasets, and the student-bootstrap 95 % CI of ΔAUC must cover the true ΔAUC in >= 90 % of them.
+  over 100 datasets, and the secondary student-bootstrap 95 % CI of ΔAUC must cover the true ΔAUC in >= 90 % of them.
   The true ΔAUC of a dataset: both variants trained on all of its students, scored on 2,000 held-out students of
   the same simulated platform.
 
@@ -80,7 +80,7 @@ def evaluate(students, y, mined, rules, seed, n_boot):
             repeats=1, n_boot=n_boot, ablation=False, transfer=False, learning_curve=None, random_state=seed)
     head = res["comparisons"][0]
     assert (head["metric"], head["variant"], head["baseline"]) == ("auc", "combined", "mined")
-    return head["p_value"], head["p_naive"], head["delta"], head["ci_low"], head["ci_high"]
+    return head["p_value"], head["p_naive"], head["pooled_delta"], head["boot_ci_low"], head["boot_ci_high"]
 
 
 def true_delta(train, population, y, mined, rules) -> float:
