@@ -118,8 +118,14 @@ def run_case(name, signal, args, parallel, seed0) -> None:
     t0 = time.perf_counter()
     truth, truth_se = true_delta(signal, args.students * 4 // 5, args.units, args.truth_draws, args.truth_units,
                                  seed0 + 999_999)
-    rows = pd.DataFrame(parallel(joblib.delayed(one_dataset)(signal, args.students, args.units, args.repeats,
-                                                             seed0 + k) for k in range(count)))
+    rows = []
+    for row in parallel(joblib.delayed(one_dataset)(signal, args.students, args.units, args.repeats, seed0 + k)
+                        for k in range(count)):
+        rows.append(row)
+        if len(rows) % 20 == 0:  # progress on stderr, so that a run cut short still says how far it got
+            print(f"  {name}: {len(rows)}/{count} datasets, rejecting {np.mean([r['p'] < ALPHA for r in rows]):.3f}",
+                  file=sys.stderr, flush=True)
+    rows = pd.DataFrame(rows)
     reject = share(rows["p"] < ALPHA)
     print(f"\n{name}: {count} datasets of {args.students} students x {args.units} units, {args.repeats} x 5 folds "
           f"({time.perf_counter() - t0:.0f} s)")
@@ -175,7 +181,7 @@ def main(argv=None) -> int:
     parser.add_argument("--n-jobs", type=int, default=1, help="parallel datasets (default 1)")
     parser.add_argument("--seed", type=int, default=0)
     args = parser.parse_args(argv)
-    parallel = joblib.Parallel(n_jobs=args.n_jobs)
+    parallel = joblib.Parallel(n_jobs=args.n_jobs, return_as="generator")
     print(f"calibration of the headline (corrected repeated cross-validation t, one-sided, α = {ALPHA}); "
           "± is the Monte-Carlo standard error")
     run_case("rules redundant with the mined features (null)", 0.0, args, parallel, args.seed * 10_000)
