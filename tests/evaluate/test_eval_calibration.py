@@ -55,8 +55,11 @@ def model():
 
 def platform(seed: int, n_students: int, link: float):
     """One simulation: per window the student, the label, and the (stateless) mined and rule features."""
+    # The scenario this test was calibrated on (the simulator's defaults before the learnable demo scenario):
+    # weak links for the other behaviours, 3-step windows, label rate 0.2, a coder erring 10 % both ways.
     data = tutor_logs(n_students=n_students, seed=seed, n_skills=4, problems_per_skill=8,
-                      label_links={"hint_skim": link}, behaviours={"hint_skim": 2.0})
+                      label_links={"rapid_guess": 1.5, "hint_skim": link, "help_avoid": 0.0, "idle": 0.8},
+                      behaviours={"hint_skim": 2.0}, window_steps=3, label_rate=0.2, coder_error=0.1)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", LogRepairWarning)
         log = EventLog(data.events)
