@@ -113,7 +113,7 @@ def _report_figures(report) -> dict[str, dict]:
     if report.task == "classification" and len(report.oof_predictions()):
         draw["roc"] = (report.plot_roc, "Pooled out-of-fold ROC curves of the three variants")
     if results["per_rule"]:
-        draw["rule_effects"] = (report.plot_rule_effects, "Per-rule Δ with 95% CIs (forest plot)")
+        draw["rule_effects"] = (report.plot_rule_effects, "Per-rule Δ with corrected-t intervals (forest plot)")
     if results["learning_curve"]:
         draw["learning_curve"] = (report.plot_learning_curve, "Learning curve by share of training students")
     if results["transfer"].get("available") and results["transfer"].get("rows"):

@@ -195,13 +195,13 @@ def _transfer_table(transfer: pd.DataFrame, metrics: list[str], m: str) -> pd.Da
     return Table.of(table, ["key", "key"] + ["num"] * (len(table.columns) - 2))
 
 
-def _curve_table(curve: pd.DataFrame, m: str) -> pd.DataFrame:
+def _curve_table(curve: pd.DataFrame, m: str, level: float) -> pd.DataFrame:
     table = pd.DataFrame({
         "share of training students": curve["fraction"].map(lambda f: NA if is_missing(f) else f"{f:.0%}"),
         f"mined {metric_label(m)}": curve["mined"].map(number),
         f"combined {metric_label(m)}": curve["combined"].map(number),
         "Δ": curve["delta"].map(signed),
-        "95% CI": _ci(curve, "ci_low", "ci_high"),
+        f"{_level(level)} CI (corrected t)": _ci(curve, "ci_low", "ci_high"),
     })
     return Table.of(table, ["num"] * 5)
 
@@ -235,7 +235,7 @@ def tables(report) -> dict[str, Table]:
         "comparisons": _comparisons_table(report.comparisons(), metrics, level),
         "per_rule": _per_rule_table(report.per_rule(), means),
         "transfer": _transfer_table(transfer, metrics, m) if len(transfer) else Table((), (), ()),
-        "learning_curve": _curve_table(report.learning_curve(), m),
+        "learning_curve": _curve_table(report.learning_curve(), m, level),
         "rules": _rules_table(results["rules"]),
         "populations": _populations_table(results["data"].get("populations") or {}),
     }
