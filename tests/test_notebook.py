@@ -25,3 +25,7 @@ def test_notebook_executes(tmp_path):
     assert html.exists() and html.stat().st_size > 10_000
     errors = [o for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", []) if o.output_type == "error"]
     assert not errors
+    printed = "".join(o.get("text", "") for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", [])
+                      if o.output_type == "stream")
+    # The headline: what was estimated, one interval and its matching p.
+    assert "changed AUC by" in printed and "% CI" in printed and "one-sided p" in printed

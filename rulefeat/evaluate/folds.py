@@ -26,8 +26,8 @@ from .guards import Finding, feature_findings
 from .metrics import kappa_threshold
 from .splits import Fold
 
-__all__ = ["FoldFeatures", "fold_features", "column_names", "dense", "TransformerSource", "PrecomputedSource", "Job", "Task", "Outcome", "run_task",
-           "run_all", "variant_columns", "rule_of_column"]
+__all__ = ["FoldFeatures", "fold_features", "column_names", "dense", "TransformerSource", "PrecomputedSource", "Job",
+           "Task", "Outcome", "run_task", "run_chunk", "chunks", "run_all", "variant_columns", "rule_of_column"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -144,6 +144,7 @@ class Task:
     kind: str
     fold: Fold
     seed: int
+    curve: bool = True  # run the learning-curve subsamples in this fold (the first repeat only, by default)
 
 
 @dataclass(eq=False)
@@ -248,7 +249,7 @@ def run_task(job: Job, task: Task) -> Outcome:
         where = (f"repeat {fold.repeat}, fold {fold.fold}" if task.kind == "cv"
                  else f"the transfer fold holding out population {fold.fold}")
         preds, thresholds = _fit_variants(job, ff, variants, job.y[fold.train], np.arange(len(fold.train)), where)
-        curve = _curve(job, task, ff, variants) if task.kind == "cv" and job.fractions else {}
+        curve = _curve(job, task, ff, variants) if task.kind == "cv" and task.curve and job.fractions else {}
         findings: list[Finding] = []
         if job.guards and task.kind == "cv":
             cols = variants["combined"]
@@ -264,7 +265,7 @@ def run_task(job: Job, task: Task) -> Outcome:
                    {"featurize": t1 - t0, "fit": time.perf_counter() - t1})
 
 
-def run_parallel(function, arguments: list, workers: int, verbose: int, label: str) -> list:
+def run_parallel(function, arguments: list, workers: int, verbose: int, label: str, unit: str = "fold") -> list:
     """The one fold loop: ``function(*args)`` for each entry of ``arguments``, results in order.
 
     Runs through ``joblib.Parallel`` (so ``joblib.parallel_config`` applies) and draws one tqdm progress bar on
@@ -272,13 +273,34 @@ def run_parallel(function, arguments: list, workers: int, verbose: int, label: s
     """
     parallel = joblib.Parallel(n_jobs=workers, return_as="generator")
     results = []
-    with tqdm(total=len(arguments), desc=label, unit="fold", disable=verbose < 1, file=sys.stderr) as bar:
+    with tqdm(total=len(arguments), desc=label, unit=unit, disable=verbose < 1, file=sys.stderr) as bar:
         for result in parallel(joblib.delayed(function)(*args) for args in arguments):
             results.append(result)
             bar.update()
     return results
 
 
+def run_chunk(job: Job, tasks: list) -> list:
+    """Several folds in one worker call: the job (and the log it carries) is shipped and unpacked once, and the
+    log's memoised per-event arrays are reused by every fold of the chunk."""
+    return [run_task(job, t) for t in tasks]
+
+
+def chunks(tasks: list, workers: int) -> list[list]:
+    """One task per call when running in this process; else about two chunks per worker, in order."""
+    if workers <= 1:
+        return [[t] for t in tasks]
+    size = max(1, -(-len(tasks) // (2 * workers)))
+    return [tasks[i:i + size] for i in range(0, len(tasks), size)]
+
+
 def run_all(job: Job, tasks: list, workers: int, verbose: int) -> list:
-    """Every task of :func:`incremental_value` through :func:`run_parallel`, in order."""
-    return run_parallel(run_task, [(job, t) for t in tasks], workers, verbose, "incremental_value")
+    """Every task of :func:`incremental_value` through :func:`run_parallel`, in order.
+
+    With several workers the folds go in chunks (:func:`chunks`): shipping the job with every single fold cost
+    more than the fold's features themselves (measured in benchmarks/incremental_value.py's stage times).
+    """
+    parts = chunks(tasks, workers)
+    unit = "fold" if all(len(p) == 1 for p in parts) else "chunk of folds"
+    done = run_parallel(run_chunk, [(job, p) for p in parts], workers, verbose, "incremental_value", unit)
+    return [outcome for part in done for outcome in part]

@@ -192,7 +192,7 @@ def plot_rule_effects(per_rule: pd.DataFrame, metric: str = "auc") -> Figure:
                     label=f"Δ when {text}")
     ax.axvline(0.0, color="0.3", linewidth=1)
     ax.set_yticks(position, [plot_text(r) for r in per_rule["rule"]])
-    ax.set(xlabel=f"Δ {_label(metric)} (95% CI)", title=title, ylim=(-0.7, n - 0.3))
+    ax.set(xlabel=f"Δ {_label(metric)} (corrected-t interval of the headline test)", title=title, ylim=(-0.7, n - 0.3))
     fig.legend(loc="outside lower center", ncols=2, fontsize="small")
     return fig
 
@@ -214,7 +214,7 @@ def plot_learning_curve(curve: pd.DataFrame, metric: str = "auc") -> Figure:
     left.set(xlabel="share of training students", ylabel=_label(metric), title=title)
     left.legend(fontsize="small")
     right.fill_between(x, col("ci_low"), col("ci_high"), color=VARIANT_COLORS["combined"], alpha=0.25,
-                       label="95% CI")
+                       label="corrected-t interval")
     right.plot(x, col("delta"), marker="o", color=VARIANT_COLORS["combined"], label="combined − mined")
     right.axhline(0.0, color="0.3", linewidth=1)
     right.set(xlabel="share of training students", ylabel=f"Δ {_label(metric)}",

@@ -115,7 +115,7 @@ def _report_figures(report) -> dict[str, dict]:
     if report.task == "classification" and len(report.oof_predictions()):
         draw["roc"] = (report.plot_roc, "Pooled out-of-fold ROC curves of the three variants")
     if results["per_rule"]:
-        draw["rule_effects"] = (report.plot_rule_effects, "Per-rule Δ with 95% CIs (forest plot)")
+        draw["rule_effects"] = (report.plot_rule_effects, "Per-rule Δ with corrected-t intervals (forest plot)")
     if results["learning_curve"]:
         draw["learning_curve"] = (report.plot_learning_curve, "Learning curve by share of training students")
     if results["transfer"].get("available") and results["transfer"].get("rows"):
@@ -159,9 +159,10 @@ def _headline_sentence(report, results: dict) -> str:
     n_folds = (settings.get("n_splits") or 0) * (settings.get("repeats") or 1)
     sided = ("one-sided (the alternative is that the rules improve the detector)"
              if settings.get("alternative") == "greater" else "two-sided")
-    return (f"The headline p-value is the corrected resampled t-test (Nadeau & Bengio 2003) on the {n_folds} "
-            f"per-fold differences in {metric_label(report.primary_metric)} between combined and mined, {sided}; it "
-            "widens the plain fold t-test's variance because training sets overlap between folds.")
+    return (f"The headline interval and p-value both come from the corrected resampled t-test (Nadeau & Bengio "
+            f"2003) on the {n_folds} per-fold differences in {metric_label(report.primary_metric)} between "
+            f"combined and mined, {sided}; it widens the plain fold t-test's variance because training sets "
+            "overlap between folds.")
 
 
 def _effect(report) -> str:
@@ -174,7 +175,8 @@ def _effect(report) -> str:
 def _value_view(report, results: dict, t: dict) -> dict:
     comp = next((c for c in results["comparisons"] if (c["variant"], c["baseline"], c["metric"])
                  == ("combined", "mined", report.primary_metric)), {})
-    return {"headline": _headline_sentence(report, results), "ci_method": comp.get("ci_method") or NA,
+    return {"headline": _headline_sentence(report, results),
+            "ci_method": f"{comp.get('ci_method') or NA}; secondary: {comp.get('boot_method') or NA}",
             "primary": t["primary"].view(), "metrics": t["metrics"].view(),
             "comparisons": t["comparisons"].view()}
 

@@ -94,10 +94,11 @@ def _value_section(report, results: dict, t: dict, images: Mapping[str, str]) ->
     alternative = results["settings"].get("alternative")
     return ["## Incremental value", "", f"**{markdown_text(report.effect())}**", "",
             markdown_table(t["primary"]), "",
-            f"Δ is the variant minus mined in the metric's own units. The headline p is the corrected "
-            f"resampled t-test over folds (Nadeau & Bengio 2003), alternative {alternative!r}; the naive "
-            f"fold t-test ignores the overlap of training sets and is shown only beside it. CI: "
-            f"{markdown_text(comp.get('ci_method') or NA)}, on the pooled out-of-fold predictions.", "",
+            f"Δ is the variant minus mined in the metric's own units, the mean over every fold and repeat. "
+            f"The headline interval and p come from one procedure: {markdown_text(comp.get('ci_method') or NA)}, "
+            f"alternative {alternative!r}; the naive fold t-test ignores the overlap of training sets and is shown "
+            f"only beside it. Secondary column: {markdown_text(comp.get('boot_method') or NA)}, which ignores "
+            f"training-set variability.", "",
             *_image(images, "roc", "ROC curves"),
             "### All metrics", "", markdown_table(t["metrics"]), "",
             "### Differences on every metric", "", markdown_table(t["comparisons"]), ""]

@@ -117,15 +117,20 @@ def _mean_sd(frame: pd.DataFrame, m: str) -> list[str]:
     return [f"{number(a)} ± {number(b)}" for a, b in zip(frame[m], frame[f"{m}_sd"], strict=True)]
 
 
-def _primary_table(summary: pd.DataFrame, m: str) -> pd.DataFrame:
+def _level(level: float) -> str:
+    return f"{level:.0%}"
+
+
+def _primary_table(summary: pd.DataFrame, m: str, level: float) -> pd.DataFrame:
     label = metric_label(m)
     table = pd.DataFrame({
         "variant": summary["variant"],
         f"{label} (folds, mean ± sd)": _mean_sd(summary, m),
         f"{label} (pooled)": summary[f"{m}_pooled"].map(number),
         "Δ vs mined": summary[f"{m}_delta"].map(signed),
-        "95% CI": _ci(summary, f"{m}_ci_low", f"{m}_ci_high"),
+        f"{_level(level)} CI (corrected t)": _ci(summary, f"{m}_ci_low", f"{m}_ci_high"),
         "p (corrected t)": summary[f"{m}_p"].map(p_text),
+        "95% CI (student bootstrap, secondary)": _ci(summary, f"{m}_boot_ci_low", f"{m}_boot_ci_high"),
         "p (naive t)": summary[f"{m}_p_naive"].map(p_text),
     })
     if m == "auc":
@@ -145,7 +150,7 @@ def _t_text(t, df) -> str:
     return NA if is_missing(t) else f"{t:.2f} ({count(df)})"
 
 
-def _comparisons_table(comparisons: pd.DataFrame, metrics: list[str]) -> pd.DataFrame:
+def _comparisons_table(comparisons: pd.DataFrame, metrics: list[str], level: float) -> pd.DataFrame:
     rank = {m: i for i, m in enumerate(metrics)}
     frame = comparisons.assign(_rank=comparisons["metric"].map(rank)).sort_values(
         ["_rank", "variant"], kind="mergesort")
@@ -153,12 +158,13 @@ def _comparisons_table(comparisons: pd.DataFrame, metrics: list[str]) -> pd.Data
         "comparison": [f"{v} − {b}" for v, b in zip(frame["variant"], frame["baseline"], strict=True)],
         "metric": [metric_label(m) + (" (lower is better)" * (m in LOWER_IS_BETTER)) for m in frame["metric"]],
         "Δ": frame["delta"].map(signed),
-        "95% CI": _ci(frame, "ci_low", "ci_high"),
+        f"{_level(level)} CI (corrected t)": _ci(frame, "ci_low", "ci_high"),
         "t (df)": [_t_text(t, df) for t, df in zip(frame["t"], frame["df"], strict=True)],
         "p (corrected t)": frame["p_value"].map(p_text),
         "p (naive t)": frame["p_naive"].map(p_text),
+        "95% CI (student bootstrap, secondary)": _ci(frame, "boot_ci_low", "boot_ci_high"),
     })
-    return Table.of(table, ["key", "text", "num", "num", "num", "num", "num"])
+    return Table.of(table, ["key", "text", "num", "num", "num", "num", "num", "num"])
 
 
 def _per_rule_table(per_rule: pd.DataFrame, means: Mapping[str, str]) -> pd.DataFrame:
@@ -166,10 +172,10 @@ def _per_rule_table(per_rule: pd.DataFrame, means: Mapping[str, str]) -> pd.Data
         "rule": per_rule["rule"],
         "means": per_rule["rule"].map(lambda r: means.get(r) or ""),
         "Δ when dropped": per_rule["drop_delta"].map(signed),
-        "CI (dropped)": _ci(per_rule, "drop_ci_low", "drop_ci_high"),
+        "CI (dropped, corrected t)": _ci(per_rule, "drop_ci_low", "drop_ci_high"),
         "Holm p (dropped)": per_rule["drop_p_holm"].map(p_text),
         "Δ when added": per_rule["add_delta"].map(signed),
-        "CI (added)": _ci(per_rule, "add_ci_low", "add_ci_high"),
+        "CI (added, corrected t)": _ci(per_rule, "add_ci_low", "add_ci_high"),
         "Holm p (added)": per_rule["add_p_holm"].map(p_text),
     })
     return Table.of(table, ["name", "text"] + ["num"] * 6)
@@ -185,13 +191,13 @@ def _transfer_table(transfer: pd.DataFrame, metrics: list[str], m: str) -> pd.Da
     return Table.of(table, ["key", "key"] + ["num"] * (len(table.columns) - 2))
 
 
-def _curve_table(curve: pd.DataFrame, m: str) -> pd.DataFrame:
+def _curve_table(curve: pd.DataFrame, m: str, level: float) -> pd.DataFrame:
     table = pd.DataFrame({
         "share of training students": curve["fraction"].map(lambda f: NA if is_missing(f) else f"{f:.0%}"),
         f"mined {metric_label(m)}": curve["mined"].map(number),
         f"combined {metric_label(m)}": curve["combined"].map(number),
         "Δ": curve["delta"].map(signed),
-        "95% CI": _ci(curve, "ci_low", "ci_high"),
+        f"{_level(level)} CI (corrected t)": _ci(curve, "ci_low", "ci_high"),
     })
     return Table.of(table, ["num"] * 5)
 
@@ -217,13 +223,15 @@ def tables(report) -> dict[str, Table]:
     summary = report.summary()
     means = {r.get("name"): r.get("means") for r in results["rules"]}
     transfer = report.transfer()
+    alpha = results["settings"].get("alpha", 0.05)  # the headline interval's level, as the evaluation chose it
+    level = 1 - 2 * alpha if results["settings"].get("alternative") == "greater" else 1 - alpha
     return {
-        "primary": _primary_table(summary, m),
+        "primary": _primary_table(summary, m, level),
         "metrics": _metrics_table(summary, metrics),
-        "comparisons": _comparisons_table(report.comparisons(), metrics),
+        "comparisons": _comparisons_table(report.comparisons(), metrics, level),
         "per_rule": _per_rule_table(report.per_rule(), means),
         "transfer": _transfer_table(transfer, metrics, m) if len(transfer) else Table((), (), ()),
-        "learning_curve": _curve_table(report.learning_curve(), m),
+        "learning_curve": _curve_table(report.learning_curve(), m, level),
         "rules": _rules_table(results["rules"]),
         "populations": _populations_table(results["data"].get("populations") or {}),
     }

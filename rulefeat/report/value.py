@@ -39,8 +39,9 @@ _PER_RULE_COLUMNS = ("rule", "drop_delta", "drop_ci_low", "drop_ci_high", "drop_
 _FOLD_COLUMNS = ("repeat", "fold", "variant", "n_train", "n_test", "n_train_students", "n_test_students",
                  "threshold")
 _CURVE_COLUMNS = ("fraction", "mined", "combined", "delta", "ci_low", "ci_high")
-_COMPARISON_COLUMNS = ("variant", "baseline", "metric", "delta", "ci_low", "ci_high", "ci_method", "t", "df",
-                       "p_value", "p_naive", "delong_z", "delong_p", "effect")
+_COMPARISON_COLUMNS = ("variant", "baseline", "metric", "delta", "ci_low", "ci_high", "ci_level", "ci_method", "se",
+                       "t", "df", "p_value", "p_naive", "pooled_delta", "boot_ci_low", "boot_ci_high",
+                       "boot_method", "delong_z", "delong_p", "effect")
 _FIGURES = {"roc": "roc.png", "rule_effects": "rule_effects.png", "learning_curve": "learning_curve.png",
             "transfer": "transfer.png"}
 
@@ -164,9 +165,10 @@ class IncrementalValueReport:
 
         For each metric ``m``: ``m`` and ``m_sd`` (mean and sd over folds), ``m_pooled`` (on the
         pooled out-of-fold predictions), and for rules/combined ``m_delta`` (variant − mined, in
-        the metric's own units, so lower is better for log loss, Brier and RMSE), its CI
-        ``m_ci_low``/``m_ci_high``, ``m_p`` (corrected resampled t-test, the headline) and
-        ``m_p_naive`` (naive fold t-test); for AUC also ``auc_delong_p``.
+        the metric's own units, so lower is better for log loss, Brier and RMSE: the mean over folds), its
+        interval ``m_ci_low``/``m_ci_high`` and ``m_p`` (one corrected resampled t-test, the headline),
+        ``m_p_naive`` (naive fold t-test) and the secondary student-bootstrap interval of repeat 0's pooled
+        predictions ``m_boot_ci_low``/``m_boot_ci_high``; for AUC also ``auc_delong_p``.
         """
         rows = []
         for name in self._variant_names():
@@ -178,7 +180,8 @@ class IncrementalValueReport:
                 comp = self._comparison(name, m) or {}
                 row.update({f"{m}_delta": comp.get("delta"), f"{m}_ci_low": comp.get("ci_low"),
                             f"{m}_ci_high": comp.get("ci_high"), f"{m}_p": comp.get("p_value"),
-                            f"{m}_p_naive": comp.get("p_naive")})
+                            f"{m}_p_naive": comp.get("p_naive"), f"{m}_boot_ci_low": comp.get("boot_ci_low"),
+                            f"{m}_boot_ci_high": comp.get("boot_ci_high")})
                 if m == "auc":
                     row["auc_delong_p"] = comp.get("delong_p")
             rows.append(row)
@@ -383,7 +386,7 @@ class IncrementalValueReport:
             return f"IncrementalValueReport({self.task}, {m}: no combined − mined comparison)"
         lower = " (lower is better)" if m in LOWER_IS_BETTER else ""
         p = comp.get("p_value")
-        p_text = "n/a" if p is None or p != p else ("< 0.001" if p < 0.001 else f"{p:.3f}")
+        p_text = "p = n/a" if p is None or p != p else ("p < 0.001" if p < 0.001 else f"p = {p:.3f}")
         return (f"IncrementalValueReport({METRIC_LABELS.get(m, m)} combined − mined = "
-                f"{signed(comp.get('delta'))}{lower}, p = {p_text}; {len(self._results['rules'])} rules, "
+                f"{signed(comp.get('delta'))}{lower}, {p_text}; {len(self._results['rules'])} rules, "
                 f"{self._results['data'].get('n_students')} students)")

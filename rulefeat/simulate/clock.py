@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 from .plan import IDLE, Plan, Platform, Population
-from .steps import TIME_ATTEMPT, TIME_HINT, Actions
+from .steps import TIME_ATTEMPT, TIME_FAST_ATTEMPT, TIME_HINT, Actions
 
 LOG_START = np.datetime64("2031-02-03T00:00:00", "ns")  # a Monday in the fictional school year
 MEDIAN_SECONDS = np.array([14.0, 8.0, 1.0, 1.3])  # by timing class: attempt, hint, fast hint, fast attempt
@@ -23,6 +23,9 @@ AFTER_HINT_FACTOR = 1.3  # an action right after a hint includes reading that hi
 NEW_PROBLEM_FACTOR = 1.5  # the first action of a problem includes reading the problem
 DIFFICULTY_SLOPE = 0.35  # log-duration per unit of step difficulty
 IDLE_SECONDS = (120.0, 600.0)  # idle pause added before the action
+# Share of first attempts on a known skill answered at a glance, as fast as a rapid guess: fluent work looks
+# quick too, so a fast attempt alone does not reveal guessing (its context does).
+FLUENT_SHARE = 0.5
 SESSION_REST_MS = 3_600_000  # at least an hour between a student's sessions
 MS = 1_000_000  # nanoseconds in a millisecond
 
@@ -49,6 +52,8 @@ def durations_ms(
     step = plan.step[visit]
     noise = rng.standard_normal(n)
     pause = rng.uniform(*IDLE_SECONDS, size=plan.student.size)
+    fluent = (timing == TIME_ATTEMPT) & ev["known"] & (ev["index"] == 0) & (rng.random(n) < FLUENT_SHARE)
+    timing = np.where(fluent, TIME_FAST_ATTEMPT, timing)
     seconds = MEDIAN_SECONDS[timing] * np.exp(SIGMA[timing] * noise)
     ordinary = (timing == TIME_ATTEMPT) | (timing == TIME_HINT)
     factor = population.student_pace[plan.student[visit]] * np.exp(

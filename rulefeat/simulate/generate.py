@@ -51,8 +51,10 @@ Generative process
      ending the step; the fast attempts are the behaviour's events;
    - *ordinary work* until a correct attempt or 10 ordinary actions.  The student
      asks for the next hint with probability 0.05 before any attempt, 0.3 after
-     one wrong attempt, 0.6 after two or more, 0.25 right after a hint (never
-     past the last level); an attempt is correct with ``1 - p_slip`` if the skill
+     one wrong attempt, 0.6 after two or more, 0.45 right after a hint (never
+     past the last level), each moved on the logit scale by the student's own
+     help-seeking tendency ``N(0, 1.5^2)`` (so hint counts alone say little about
+     skimming); an attempt is correct with ``1 - p_slip`` if the skill
      is known or the bottom-out hint was seen, else with ``p_guess``.
 
    *idle* adds a pause of ``U(2, 10)`` minutes to the step's first action, whatever
@@ -71,7 +73,9 @@ Generative process
    times ``pace * exp(0.35 * step difficulty)``, times 0.7 for an attempt on a
    known skill, 1.3 for an action right after a hint, 1.5 for the first action of
    a problem, clipped to [0.3, 240] s.  Fast hints and fast attempts are
-   log-normal with medians 1.0 s and 1.3 s (sigma 0.35) clipped to [0.3, 2.5] s.
+   log-normal with medians 1.0 s and 1.3 s (sigma 0.35) clipped to [0.3, 2.5] s;
+   half of the first attempts on a known skill are *fluent*, as fast as a rapid
+   guess (a fast attempt alone does not reveal guessing; its context does).
    No gap inside a session reaches 30 minutes; sessions are hours or days apart.
 10. **Windows.**  Each session is cut into consecutive blocks of ``window_steps``
     step visits (a short tail is dropped); every student gets up to
@@ -80,7 +84,7 @@ Generative process
     ``start`` 1 ms after the student's action before the block (the moment they
     started on its first action) and ``end`` 1 ms after its last action: an event
     belongs to the window when ``start <= time < end``.  Windows last from about
-    20 seconds to a few minutes (longer with an idle pause).
+    a minute to several minutes (longer with an idle pause).
 11. **Labels.**  ``f_b`` is the number of the window's steps holding an episode of
     behaviour ``b`` (0 to ``window_steps``).  The true label is 1 with probability
     ``expit(a_school + sum_b label_links[b] * f_b)``; the intercept ``a_school`` is
@@ -89,9 +93,16 @@ Generative process
     a behaviour whose link is 0 is independent of the label even though its rate
     varies by school.  The coder then reads a true 0 as 1 with probability
     ``coder_error[0]`` and a true 1 as 0 with ``coder_error[1]`` (one number sets
-    both).  Labels are drawn after the log, from their own random stream, so
-    changing ``label_links``, ``label_rate`` or ``coder_error`` leaves the events as
-    they are.  Default links: rapid_guess 1.5, hint_skim 1.5, help_avoid 0.0, idle 0.8.
+    both; default 0.08 and 0.16).  Labels are drawn after the log, from their own
+    random stream, so changing ``label_links``, ``label_rate`` or ``coder_error``
+    leaves the events as they are.  Default links: rapid_guess 7, hint_skim 7,
+    help_avoid 0, idle 2, label rate 0.3, windows of 6 steps: a window holding a
+    planted episode is almost surely a true 1, so the best possible detector of the
+    coded labels (the true probability) reaches an AUC of about 0.85-0.89, and the
+    coder agrees with the truth at kappa about 0.74-0.80 (``SimulationTruth.ceiling_auc``
+    and ``coder_kappa`` report both for each simulation); detectors of this field are
+    typically judged against human coding agreeing at kappa >= 0.6 (common practice,
+    no source).
 12. **Tests.**  Pre- and post-test are the proportion right of 40 items; an item
     is right with probability ``0.15 + 0.75 * K + 0.05 * ability`` plus ``N(0, 0.05)``
     day-to-day form, clipped to [0.02, 0.98], where ``K`` is the share of the
@@ -137,6 +148,7 @@ import pandas as pd
 
 from .._text import did_you_mean
 from ..errors import SimulationError
+from ..stats.inference import auc, cohen_kappa
 from . import clock as _sim_time
 from . import frames as _sim_frames
 from . import labels as _sim_labels
@@ -147,7 +159,7 @@ from .plan import BEHAVIOURS
 
 __all__ = ["BEHAVIOURS", "DEFAULT_LABEL_LINKS", "SimulatedTutorData", "SimulationTruth", "tutor_logs"]
 
-DEFAULT_LABEL_LINKS = {"rapid_guess": 1.5, "hint_skim": 1.5, "help_avoid": 0.0, "idle": 0.8}
+DEFAULT_LABEL_LINKS = {"rapid_guess": 7.0, "hint_skim": 7.0, "help_avoid": 0.0, "idle": 2.0}
 PLATFORM = "Zorbleth"
 
 
@@ -184,13 +196,19 @@ class SimulationTruth:
         Per window: ``window_id``, the number of events of each behaviour (column
         named after it), ``<behaviour>_episodes`` (the ``f_b`` of the label model)
         and ``p_true_label``.
+    ceiling_auc : float
+        AUC of the true-label probability ``p_true_label`` against the coded labels:
+        the best any detector of these coded windows can expect (NaN with one class).
+    coder_kappa : float
+        Cohen's kappa between the true and the coded labels: how well the simulated
+        coder agrees with the truth (NaN when undefined).
 
     Examples
     --------
     >>> from rulefeat.simulate import tutor_logs
     >>> truth = tutor_logs(10, seed=2, label_links={"idle": 0.0}).truth
     >>> truth.label_links
-    {'rapid_guess': 1.5, 'hint_skim': 1.5, 'help_avoid': 0.0, 'idle': 0.0}
+    {'rapid_guess': 7.0, 'hint_skim': 7.0, 'help_avoid': 0.0, 'idle': 0.0}
     >>> bool((truth.knowledge[:-1] <= 1).all())
     True
     """
@@ -205,6 +223,8 @@ class SimulationTruth:
     label_rate: float
     coder_error: tuple[float, float]
     window_behaviour: pd.DataFrame
+    ceiling_auc: float = float("nan")
+    coder_kappa: float = float("nan")
 
 
 @dataclass(frozen=True, eq=False)
@@ -339,9 +359,9 @@ def tutor_logs(
     ability_sd: float = 1.0,
     behaviours: Mapping[str, float] | None = None,
     label_links: Mapping[str, float] | None = None,
-    label_rate: float = 0.2,
-    coder_error: float | tuple[float, float] = 0.1,
-    window_steps: int = 3,
+    label_rate: float = 0.3,
+    coder_error: float | tuple[float, float] = (0.08, 0.16),
+    window_steps: int = 6,
     windows_per_student: int = 6,
 ) -> SimulatedTutorData:
     """Simulate tutoring logs, coded windows and test scores with known ground truth.
@@ -384,12 +404,12 @@ def tutor_logs(
         Weights of the label model overriding :data:`DEFAULT_LABEL_LINKS` name by
         name; ``{"hint_skim": 0.0}`` gives the null setting in which hint skimming
         happens as usual but is independent of the labels.
-    label_rate : float, default 0.2
+    label_rate : float, default 0.3
         Mean probability of a true label 1 in each school, in (0, 1).
-    coder_error : float or (float, float), default 0.1
+    coder_error : float or (float, float), default (0.08, 0.16)
         Probability that the coder flips a label; a pair gives
         ``(P(1 | true 0), P(0 | true 1))``.  Each in [0, 0.5).
-    window_steps : int, default 3
+    window_steps : int, default 6
         Step visits in a coded window.  Windows are cut by steps rather than by
         minutes so that the amounts of the behaviours in a window stay
         independent (see "Null setting by design"); they last about 20 s to a
@@ -481,5 +501,19 @@ def _simulate(rng: np.random.Generator, knobs: dict, links: dict[str, float]) ->
         label_rate=knobs["label_rate"],
         coder_error=knobs["coder_error"],
         window_behaviour=window_behaviour,
+        ceiling_auc=_ceiling_auc(windows["label"].to_numpy(), window_behaviour["p_true_label"].to_numpy()),
+        coder_kappa=_coder_kappa(windows["true_label"].to_numpy(), windows["label"].to_numpy()),
     )
     return SimulatedTutorData(events, windows, outcomes, truth)
+
+
+def _ceiling_auc(coded: np.ndarray, p_true: np.ndarray) -> float:
+    if len(np.unique(coded)) < 2:
+        return float("nan")
+    return float(auc(coded, p_true))
+
+
+def _coder_kappa(true: np.ndarray, coded: np.ndarray) -> float:
+    if len(true) == 0 or (len(np.unique(true)) < 2 and len(np.unique(coded)) < 2):
+        return float("nan")
+    return float(cohen_kappa(true, coded))

@@ -27,7 +27,10 @@ ORDINARY_CAP = 10  # ordinary actions on one step before the student moves on un
 P_HINT_FIRST = 0.05  # asks for a hint before any attempt
 P_HINT_ONE_WRONG = 0.3  # ... after one wrong attempt
 P_HINT_TWO_WRONG = 0.6  # ... after two or more wrong attempts
-P_HINT_AGAIN = 0.25  # ... right after reading a hint
+P_HINT_AGAIN = 0.45  # ... right after reading a hint
+# Students differ in how readily they ask for help: every ordinary hint probability of a student is moved by
+# the same N(0, HELP_SD^2) draw on the logit scale, so hint counts alone say little about skimming.
+HELP_SD = 1.5
 HINT_LEARN_SHARE = 0.5  # a read (not skimmed) hint teaches with this share of p_learn
 
 TIME_ATTEMPT, TIME_HINT, TIME_FAST_HINT, TIME_FAST_ATTEMPT = range(4)
@@ -67,7 +70,8 @@ class _Live:
             setattr(self, name, values[mask])
 
 
-def _start(platform: Platform, plan: Plan, vis: np.ndarray, known: np.ndarray, shift: np.ndarray) -> _Live:
+def _start(platform: Platform, plan: Plan, vis: np.ndarray, known: np.ndarray, shift: np.ndarray,
+           help_shift: np.ndarray) -> _Live:
     step = plan.step[vis]
     skill = platform.step_skill[step]
     levels = platform.step_levels[step]
@@ -78,6 +82,7 @@ def _start(platform: Platform, plan: Plan, vis: np.ndarray, known: np.ndarray, s
         vis=vis, pos=np.arange(vis.size), known=known.copy(), levels=levels,
         guess=platform.p_guess[skill], slip=platform.p_slip[skill],
         learn=_shift_probability(platform.p_learn[skill], shift[plan.student[vis]]),
+        help=help_shift[plan.student[vis]],
         n_avoid=n_avoid, avoid_left=np.where(flags[:, HELP_AVOID], 2 + n_avoid, 0),
         skim_left=np.where(flags[:, HINT_SKIM], levels, 0), trigger=flags[:, RAPID_GUESS].copy(),
         burst_left=np.where(flags[:, RAPID_GUESS], plan.n_burst[vis], 0),
@@ -97,7 +102,7 @@ def _one_action(rng: np.random.Generator, s: _Live) -> tuple[dict, np.ndarray]:
     ordinary = rest & ~s.trigger & (s.burst_left == 0)
     bottom = s.level >= s.levels
     p_hint = np.where(s.wrong == 0, P_HINT_FIRST, np.where(s.wrong == 1, P_HINT_ONE_WRONG, P_HINT_TWO_WRONG))
-    p_hint = np.where(s.last_hint, P_HINT_AGAIN, p_hint)
+    p_hint = _shift_probability(np.where(s.last_hint, P_HINT_AGAIN, p_hint), s.help)
     is_hint = in_skim | (ordinary & ~bottom & (u_hint < p_hint))
     attempt = ~is_hint
     # Having seen the last (bottom-out) hint the student can copy the answer.
@@ -131,9 +136,9 @@ def _one_action(rng: np.random.Generator, s: _Live) -> tuple[dict, np.ndarray]:
     return logged, correct | (s.ordinary_n >= ORDINARY_CAP)
 
 
-def _run_batch(rng, platform, plan, vis, known, shift, logs, n_actions) -> np.ndarray:
+def _run_batch(rng, platform, plan, vis, known, shift, help_shift, logs, n_actions) -> np.ndarray:
     """Run one visit per (student, skill) pair to its end; return the knowledge after it."""
-    s = _start(platform, plan, vis, known, shift)
+    s = _start(platform, plan, vis, known, shift, help_shift)
     known_after = known.copy()
     index = 0
     while s.vis.size:
@@ -157,6 +162,7 @@ def simulate_actions(
     n_students = learn_shift.size
     skill_of_visit = platform.step_skill[plan.step]
     known = rng.random((n_students, len(platform.skill_names))) < platform.p_init
+    help_shift = rng.normal(0.0, HELP_SD, n_students)
     initial = known.copy()
     order = np.argsort(plan.seq_pos, kind="stable")
     bounds = np.searchsorted(plan.seq_pos[order], np.arange(plan.seq_pos.max() + 2))
@@ -165,6 +171,7 @@ def simulate_actions(
     for t in range(bounds.size - 1):
         vis = order[bounds[t] : bounds[t + 1]]
         stu, skl = plan.student[vis], skill_of_visit[vis]
-        known[stu, skl] = _run_batch(rng, platform, plan, vis, known[stu, skl], learn_shift, logs, n_actions)
+        known[stu, skl] = _run_batch(rng, platform, plan, vis, known[stu, skl], learn_shift, help_shift, logs,
+                                     n_actions)
     joined = {key: np.concatenate([log[key] for log in logs]) for key in logs[0]}
     return Actions(**joined, n_actions=n_actions, initial_known=initial, final_known=known)

@@ -513,18 +513,18 @@ def _size_word(magnitude: float, limits: tuple[float, float, float]) -> str:
     return "large"
 
 
-def _p_text(p_value: float | None, where: str) -> str:
+def _p_text(p_value: float | None, where: str, prefix: str = "") -> str:
     if p_value is None or np.isnan(p_value):
         return ""
     if not 0 <= p_value <= 1:
         raise EvaluationError(f"{where}: 'p_value' must be in [0, 1] or None; got {p_value!r}.")
-    return "; p < 0.001" if p_value < 0.001 else f"; p = {p_value:.3f}"
+    return f"; {prefix}p < 0.001" if p_value < 0.001 else f"; {prefix}p = {p_value:.3f}"
 
 
 def describe_effect(delta: float, ci_low: float, ci_high: float, p_value: float | None,
                     metric: str = "AUC", *, ci_level: float = 0.95, subject: str = "Adding the rules",
                     higher_is_better: bool = True,
-                    size_limits: tuple[float, float, float] = AUC_SIZE_LIMITS) -> str:
+                    size_limits: tuple[float, float, float] = AUC_SIZE_LIMITS, one_sided: bool = False) -> str:
     """One plain-English sentence describing a metric difference and its uncertainty.
 
     When the interval covers 0 the sentence says there is "no clear evidence of a
@@ -533,7 +533,11 @@ def describe_effect(delta: float, ci_low: float, ci_high: float, p_value: float 
     negligible / small / moderate, else large — and the direction (improvement or decline).
     ``p_value`` is shown as ``p = 0.004`` or ``p < 0.001`` and omitted when None or NaN.
     Set ``higher_is_better=False`` for losses (log loss, Brier score) so that a decrease is
-    an improvement; ``ci_level`` only labels the interval.
+    an improvement; ``ci_level`` only labels the interval.  ``one_sided=True`` labels the
+    p-value as one-sided (H1: an improvement) and, when the interval lies wholly on the side
+    of a decline, says there is no evidence of an improvement (a one-sided test cannot show a
+    decline); pair it with the ``1 - 2 alpha`` interval so that the verdict and ``p < alpha``
+    always agree.
 
     Examples
     --------
@@ -541,6 +545,8 @@ def describe_effect(delta: float, ci_low: float, ci_high: float, p_value: float 
     'Adding the rules changed AUC by +0.021 (95% CI +0.004 to +0.038; p = 0.012): a small improvement.'
     >>> describe_effect(-0.004, -0.019, 0.011, 0.6)
     'Adding the rules changed AUC by -0.004 (95% CI -0.019 to +0.011; p = 0.600): no clear evidence of a difference.'
+    >>> describe_effect(0.05, 0.03, 0.07, 0.0004, ci_level=0.9, one_sided=True)
+    'Adding the rules changed AUC by +0.050 (90% CI +0.030 to +0.070; one-sided p < 0.001): a moderate improvement.'
     """
     where = "describe_effect"
     if not np.isfinite([delta, ci_low, ci_high]).all() or ci_low > ci_high:
@@ -550,9 +556,12 @@ def describe_effect(delta: float, ci_low: float, ci_high: float, p_value: float 
         raise EvaluationError(f"{where}: 'ci_level' must be in (0, 1); got {ci_level!r}.")
     if len(size_limits) != 3 or list(size_limits) != sorted(size_limits):
         raise EvaluationError(f"{where}: 'size_limits' must be 3 increasing numbers; got {size_limits!r}.")
-    interval = f"{ci_level * 100:g}% CI {ci_low:+.3f} to {ci_high:+.3f}{_p_text(p_value, where)}"
+    p_text = _p_text(p_value, where, "one-sided " if one_sided else "")
+    interval = f"{ci_level * 100:g}% CI {ci_low:+.3f} to {ci_high:+.3f}{p_text}"
     head = f"{subject} changed {metric} by {delta:+.3f} ({interval})"
     if ci_low <= 0 <= ci_high:
-        return f"{head}: no clear evidence of a difference."
+        return f"{head}: no clear evidence of {'an improvement' if one_sided else 'a difference'}."
     better = (ci_low > 0) == higher_is_better
+    if one_sided and not better:
+        return f"{head}: no evidence of an improvement (the interval lies on the side of a decline)."
     return f"{head}: a {_size_word(abs(delta), size_limits)} {'improvement' if better else 'decline'}."

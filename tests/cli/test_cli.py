@@ -23,7 +23,8 @@ except ImportError:  # Python 3.10
     import tomli as tomllib
 
 ROOT = Path(__file__).resolve().parents[2]
-FAST = ["--folds", "3", "--n-boot", "50", "--no-curve", "--no-ablation", "--no-transfer", "--n-jobs", "1"]
+FAST = ["--folds", "3", "--repeats", "1", "--n-boot", "50", "--no-curve", "--no-ablation", "--no-transfer",
+        "--n-jobs", "1"]
 
 
 def rulefeat_cmd(*args, cwd=None, check_code=None):
@@ -262,6 +263,10 @@ def test_evaluate_headline_matches_the_saved_report(evaluated):
     assert headline["headline"]["delta"] == pytest.approx(row["delta"])
     assert headline["headline"]["p_value"] == pytest.approx(row["p_value"])
     assert headline["headline"]["effect"] == row["effect"]
+    # The headline sentence says what was estimated and how sure it is: one interval and its matching p.
+    assert "changed AUC by" in row["effect"] and "90% CI" in row["effect"] and "one-sided p" in row["effect"]
+    assert "expected change for a detector trained on about" in row["effect"]
+    assert (row["ci_low"] > 0) == (row["p_value"] < 0.05)
     assert headline["units"] == 160 and headline["students"] == 40
     assert (out / "report.html").is_file() and (out / "diagnostics" / "diagnostics.json").is_file()
     assert saved["reproducibility"]["command"].startswith("python -m rulefeat evaluate")

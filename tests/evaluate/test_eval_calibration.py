@@ -7,7 +7,7 @@ standardised features, 5-fold student-grouped CV, one repeat.
 * Null: hint skimming has label link 0 (it still happens at its usual rate); the headline test (corrected
   resampled t-test, one-sided) must reject at alpha = 0.05 in at most 8 % of 200 datasets.
 * Planted effect: hint skimming has label link 4 (and twice its base rate); power at alpha = 0.05 must be >= 0.8
-  over 100 datasets, and the student-bootstrap 95 % CI of ΔAUC must cover the true ΔAUC in >= 90 % of them.
+  over 100 datasets, and the secondary student-bootstrap 95 % CI of ΔAUC must cover the true ΔAUC in >= 90 % of them.
   The true ΔAUC of a dataset: both variants trained on all of its students, scored on 2,000 held-out students of
   the same simulated platform.
 
@@ -55,8 +55,11 @@ def model():
 
 def platform(seed: int, n_students: int, link: float):
     """One simulation: per window the student, the label, and the (stateless) mined and rule features."""
+    # The scenario this test was calibrated on (the simulator's defaults before the learnable demo scenario):
+    # weak links for the other behaviours, 3-step windows, label rate 0.2, a coder erring 10 % both ways.
     data = tutor_logs(n_students=n_students, seed=seed, n_skills=4, problems_per_skill=8,
-                      label_links={"hint_skim": link}, behaviours={"hint_skim": 2.0})
+                      label_links={"rapid_guess": 1.5, "hint_skim": link, "help_avoid": 0.0, "idle": 0.8},
+                      behaviours={"hint_skim": 2.0}, window_steps=3, label_rate=0.2, coder_error=0.1)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", LogRepairWarning)
         log = EventLog(data.events)
@@ -80,7 +83,7 @@ def evaluate(students, y, mined, rules, seed, n_boot):
             repeats=1, n_boot=n_boot, ablation=False, transfer=False, learning_curve=None, random_state=seed)
     head = res["comparisons"][0]
     assert (head["metric"], head["variant"], head["baseline"]) == ("auc", "combined", "mined")
-    return head["p_value"], head["p_naive"], head["delta"], head["ci_low"], head["ci_high"]
+    return head["p_value"], head["p_naive"], head["pooled_delta"], head["boot_ci_low"], head["boot_ci_high"]
 
 
 def true_delta(train, population, y, mined, rules) -> float:

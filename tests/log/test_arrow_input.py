@@ -103,7 +103,8 @@ def test_units_from_arrow_and_polars_resolve_and_featurize_the_same(data):
 def test_polars_units_in_incremental_value(data):
     log = rulefeat.EventLog(data.events)
     units = data.windows[["student", "start", "end", "label"]]
-    kwargs = dict(cv=3, n_boot=20, learning_curve=None, ablation=False, transfer=False, random_state=0, n_jobs=1)
+    kwargs = dict(cv=3, n_boot=20, learning_curve=None, ablation=False, transfer=False, random_state=0, n_jobs=1,
+                  repeats=1)
     a = rulefeat.incremental_value(log, units, "label", RULES, **kwargs)
     b = rulefeat.incremental_value(log, pl.from_pandas(units), "label", RULES, **kwargs)
     assert a.to_json() == b.to_json()

@@ -68,7 +68,9 @@ def test_mastery_follows_true_knowledge_on_held_out_students(sim, log):
     ("sequence__hint_then_hint", "hint_skim_episodes", 1, 0.45),            # observed 0.72
     ("help__last_hint_step_share", "hint_skim_episodes", 1, 0.4),           # observed 0.63
     ("correctness__longest_error_streak", "help_avoid_episodes", 1, 0.3),   # observed 0.54
-    ("timing__log_duration_mean_norm_step", "rapid_guess_episodes", -1, 0.2),  # observed -0.40
+    # observed -0.16: half the first attempts on a known skill are fluent and as fast as a rapid guess, so a
+    # window's mean duration says less about guessing than it did (-0.40) before fluent attempts existed
+    ("timing__log_duration_mean_norm_step", "rapid_guess_episodes", -1, 0.1),
 ])
 def test_planted_behaviours_show_in_their_features(sim, log, feature, behaviour, sign, bound):
     X = sim.windows[["student", "start", "end"]]

@@ -68,7 +68,7 @@ def report() -> IncrementalValueReport:
         warnings.simplefilter("ignore")  # convergence and guard warnings are not what these tests are about
         return rulefeat.incremental_value(log, data.windows[["student", "start", "end", "population"]],
                                           data.windows["label"], rules, model=model, cv=3, n_boot=40,
-                                          population="population", random_state=0)
+                                          population="population", random_state=0, repeats=1)
 
 
 class Diagnostics:
@@ -217,14 +217,14 @@ def test_headline_table_numbers_are_formatted_and_right_aligned(report, written)
     rows = {row[0][1]: row for row in _cells(written[1], "value")}
     assert list(rows) == ["mined", "rules", "combined"]
     combined = rows["combined"]
-    assert [k for k, _ in combined] == ["key"] + ["num"] * 7
+    assert [k for k, _ in combined] == ["key"] + ["num"] * 8
     assert combined[3][1] == f"{summary.loc['combined', 'auc_delta']:+.3f}"
     assert combined[2][1] == f"{summary.loc['combined', 'auc_pooled']:.3f}"
     assert combined[5][1] == p_value_text(summary.loc["combined", "auc_p"])
     for _, text in combined[1:]:
         assert re.fullmatch(r"(< 0\.001|n/a|[-+]?\d+\.\d{3}( ± \d+\.\d{3})?|\[[-+]\d\.\d{3}, [-+]\d\.\d{3}\])",
                             text), text
-    assert [k for k, _ in rows["mined"]][1:] == ["num"] * 7 and rows["mined"][3][1] == "n/a"
+    assert [k for k, _ in rows["mined"]][1:] == ["num"] * 8 and rows["mined"][3][1] == "n/a"
 
 
 def test_per_rule_table_follows_the_ablation(report, written):
@@ -325,7 +325,7 @@ def test_regression_report_renders_without_roc(tmp_path):
     page = Page(html)
     assert len(page.attrs("img")) == 2  # rule effects and learning curve; no ROC, no transfer
     rows = {row[0][1]: row for row in _cells(html, "value")}
-    assert [k for k, _ in rows["combined"]] == ["key"] + ["num"] * 6  # no DeLong column for R²
+    assert [k for k, _ in rows["combined"]] == ["key"] + ["num"] * 7  # no DeLong column for R²
     assert rows["combined"][3][1] == f"{report.summary().set_index('variant').loc['combined', 'r2_delta']:+.3f}"
     assert "R² (folds, mean ± sd)" in page.all_text() and "RMSE (lower is better)" in page.all_text()
 

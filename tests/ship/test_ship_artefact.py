@@ -157,7 +157,7 @@ def test_evaluation_report_headline_goes_into_the_manifest(shipped, tmp_path):
     demo = demo_rules_path()
     report = rulefeat.incremental_value(log, X, y, demo, model=model, mined={"families": ["volume"]}, cv=3,
                                         n_boot=50, learning_curve=None, ablation=False, transfer=False,
-                                        random_state=0)
+                                        random_state=0, repeats=1)
     detector = rulefeat.make_detector(log, demo, model=model, mined={"families": ["volume"]},
                                       random_state=0).fit(X, y)
     path = rulefeat.save_detector(detector, tmp_path / "r.zip", evaluation=report)

@@ -107,7 +107,7 @@ def test_parallel_evaluation_with_fitted_prototypes_matches_sequential(trained):
     rf = rulefeat.RuleFeatures(rules=rules(), log=log).fit(X)
     mined = rulefeat.LogFeatures(log, families=["volume", "timing"], random_state=0).fit(X)
     model = make_pipeline(SimpleImputer(), StandardScaler(), LogisticRegression(max_iter=300))
-    kw = dict(model=model, mined=mined, cv=3, random_state=1, n_boot=50,
+    kw = dict(model=model, mined=mined, cv=3, random_state=1, n_boot=50, repeats=1,
               transfer=False, learning_curve=None, ablation=False)
     a, oof_a, _ = compute_incremental_value(log, X, y, rf, **kw)
     b, oof_b, _ = compute_incremental_value(log, X, y, rf, n_jobs=2, **kw)

@@ -178,7 +178,8 @@ def _learning_curve(ctx, cv, scores, sizes) -> list:
         valid = d[~np.isnan(d)]
         low = high = float("nan")
         if len(valid) >= 2:
-            r = stats.corrected_resampled_ttest(valid, f * sizes[0], sizes[1], alpha=compare.ALPHA)
+            level = compare.interval_level(ctx.settings["alternative"])
+            r = stats.corrected_resampled_ttest(valid, f * sizes[0], sizes[1], alpha=1.0 - level)
             low, high = r.ci_low, r.ci_high
         rows.append({"fraction": f, "mined": _summary_stats(mined)["mean"],
                      "combined": _summary_stats(combined)["mean"],
@@ -246,11 +247,18 @@ def _method_notes(ctx, notes) -> None:
     s = ctx.settings
     side = ("one-sided (H1: the variant is better than its baseline; for log loss, Brier and RMSE better means "
             "lower)" if s["alternative"] == "greater" else "two-sided")
-    notes.append(f"Δ is variant − baseline in each metric's own units, on the pooled out-of-fold predictions of "
-                 f"repeat 0; its 95% CI comes from a bootstrap over students (n_boot={s['n_boot']}). The headline "
-                 f"p-value is the corrected resampled t-test on the per-fold differences of all folds and repeats, "
-                 f"{side}; p_naive is the plain t-test of the same differences, which ignores that training sets "
-                 "overlap and is too optimistic (shown for comparison only).")
+    level = compare.interval_level(s["alternative"])
+    notes.append(f"Δ is variant − baseline in each metric's own units, the mean over all folds and repeats of the "
+                 f"per-fold difference on the fold's test students. Its {level:.0%} interval and the headline "
+                 f"p-value both come from the corrected repeated cross-validation t-test (Nadeau & Bengio 2003; "
+                 f"Bouckaert & Frank 2004), {side}, so the interval lies on the side of an improvement exactly "
+                 f"when p < {compare.ALPHA:g}. It estimates the expected Δ of detectors trained on training sets "
+                 "of the folds' size, not the accuracy of one detector fitted on every student. p_naive is the "
+                 "plain t-test of the same differences, which ignores that training sets overlap and is too "
+                 "optimistic (shown for comparison only). The secondary column (pooled_delta, boot_ci_low, "
+                 f"boot_ci_high) is Δ on the pooled out-of-fold predictions of repeat 0 with a 95% bootstrap over "
+                 f"students (n_boot={s['n_boot']}); it holds the trained models fixed and so ignores training-set "
+                 "variability. Per-rule rows use the corrected t procedure too, then Holm within each family.")
     if ctx.inputs.task == "classification":
         notes.append("DeLong's test (delong_z, delong_p) compares pooled out-of-fold AUCs of repeat 0 as if units "
                      "were independent; units of one student are not, so it is optimistic when students have many "
@@ -260,7 +268,7 @@ def _method_notes(ctx, notes) -> None:
     if s["fractions"]:
         notes.append("Learning curve: in each fold the model saw a random share of the training students (the same "
                      "students for both variants; the feature transformers stayed fitted on the whole training "
-                     "fold); the interval is the corrected resampled t interval of the per-fold Δ.")
+                     f"fold); the interval is the {level:.0%} corrected resampled t interval of the per-fold Δ.")
 
 
 def _emit_caught(outcomes, notes) -> None:
@@ -287,14 +295,21 @@ def _versions(ctx) -> dict:
             "rules_hash": ctx.rules_hash, "command": ctx.command}
 
 
-def _comparisons(ctx, scores, sizes, pooled, pooled_values, notes) -> list:
+def _comparisons(ctx, cv, scores, sizes, pooled, pooled_values, notes) -> list:
     out = []
+    usable = [o for o, value in zip(cv, scores["mined"][PRIMARY[ctx.inputs.task]], strict=True)
+              if not np.isnan(value)]
+    n_train_students = float(np.mean([o.n_train_students for o in usable])) if usable else float("nan")
+    estimand = compare.estimand_sentence(len(usable), ctx.settings["repeats"], n_train_students,
+                                         ctx.settings["alternative"])
     for m in metric_names(ctx.inputs.task):
         for v in ("combined", "rules"):
             d = scores[v][m] - scores["mined"][m]
-            out.append(compare.comparison(v, "mined", m, d, sizes, pooled, ctx.settings["n_boot"], ctx.seeds.boot,
-                                          ctx.settings["alternative"], SUBJECTS[v], pooled_values["mined"][m],
-                                          notes))
+            entry = compare.comparison(v, "mined", m, d, sizes, pooled, ctx.settings["n_boot"], ctx.seeds.boot,
+                                       ctx.settings["alternative"], SUBJECTS[v], pooled_values["mined"][m], notes)
+            if np.isfinite(entry["ci_low"]):
+                entry["effect"] = f"{entry['effect']} {estimand}"
+            out.append(entry)
     return out
 
 
@@ -326,9 +341,8 @@ def results(ctx: Context, outcomes: list, cv_folds: list, pop_folds: list):
     pooled = _pooled(ctx, cv, variants)
     pooled_values = {v: _pooled_scores(ctx, pooled, v) for v in variants}
     sizes = _sizes(cv)
-    comparisons = _comparisons(ctx, scores, sizes, pooled, pooled_values, notes)
-    per_rule = (compare.per_rule_rows(ablation, PRIMARY[task], scores, sizes, pooled,
-                                      ctx.settings["n_boot"], ctx.seeds.boot, ctx.settings["alternative"], notes)
+    comparisons = _comparisons(ctx, cv, scores, sizes, pooled, pooled_values, notes)
+    per_rule = (compare.per_rule_rows(ablation, PRIMARY[task], scores, sizes, ctx.settings["alternative"])
                 if ctx.settings["ablation"] else [])
     transfer, oof_transfer = _transfer(ctx, tr, pop_folds, notes)
     guard_list = _guards(ctx, cv, cv_folds)

@@ -1,21 +1,31 @@
-"""Paired comparisons of two variants: Δ with a student-bootstrap CI, fold t-tests, DeLong, effect sentence.
+"""Paired comparisons of two variants: Δ with one corrected-t interval and p, a student-bootstrap column, DeLong.
 
 How each number is made (also written into every evaluation's notes):
 
-* ``delta`` is ``metric(variant) - metric(baseline)`` in the metric's own units, on the pooled out-of-fold
-  predictions of repeat 0 (every unit predicted once, by a model that never saw its student).
-* ``ci_low`` / ``ci_high``: 95 % percentile interval of the same difference over bootstrap replicates that resample
-  *students* with replacement (a student's units stay together).  AUC takes the fast vectorised path of
+* The headline procedure is the corrected repeated cross-validation t (Nadeau & Bengio 2003, Machine Learning
+  52:239; applied to r x k folds by Bouckaert & Frank 2004, PAKDD).  ``delta`` is the mean over all r x k folds of
+  ``metric(variant) - metric(baseline)`` on the fold's test students, ``se`` its corrected standard error
+  ``sqrt((1/(r k) + n_test/n_train) var(d))`` and ``t = delta / se`` with ``r k - 1`` degrees of freedom.  The
+  interval and ``p_value`` come from that one t: with ``alternative="greater"`` the test is one-sided (H1 "the
+  variant is better than the baseline": Δ > 0 where higher is better — AUC, kappa, average precision, R² — and
+  Δ < 0 for log loss, Brier, RMSE) and the interval is the two-sided ``1 - 2 alpha`` one (90 % at alpha 0.05),
+  whose bound on the side of H1 is the one-sided ``1 - alpha`` bound; with ``"two-sided"`` it is the
+  ``1 - alpha`` interval and the two-sided p.  So the interval lies wholly on the side of H1 exactly when
+  ``p_value < alpha`` (``ci_level`` records the level).  The corrected variance widens the naive one for the
+  overlap of training sets, so the interval allows for the choice of training students as well as the test
+  students.  What it estimates is the expected Δ of detectors trained on training sets of the folds' size, not
+  the accuracy of the one detector fitted on every student.
+* ``p_naive`` is the plain t-test of the same differences (too optimistic: training sets overlap), for comparison.
+* Secondary column: ``pooled_delta`` is the difference on the pooled out-of-fold predictions of repeat 0 (every
+  unit predicted once, by a model that never saw its student) and ``boot_ci_low`` / ``boot_ci_high`` its 95 %
+  percentile interval over bootstrap replicates that resample *students* with replacement (a student's units
+  stay together).  It holds the trained models fixed, so it ignores training-set variability and is narrower
+  than it should be; it is kept, labelled, for comparison.  AUC takes the fast vectorised path of
   :func:`~rulefeat.stats.inference.grouped_bootstrap_auc_difference`; metrics that are sums over rows (kappa's
   confusion counts, log loss, Brier, R², RMSE) are bootstrapped here from per-student sums times a matrix of
   student multiplicities, and average precision from per-student tallies of each distinct score like the AUC
   path — all vectorised over blocks of replicates.  Replicates without both classes (classification) or with a
   constant target (R²) are dropped.
-* ``p_value`` (the headline test): the corrected resampled t-test (Nadeau & Bengio 2003) on the per-fold
-  differences of all repeats, ``n_train`` / ``n_test`` the mean fold sizes in units.  With
-  ``alternative="greater"`` it is one-sided, H1 "the variant is better than the baseline": Δ > 0 for metrics where
-  higher is better (AUC, kappa, average precision, R²), Δ < 0 where lower is better (log loss, Brier, RMSE).
-  ``p_naive`` is the plain t-test of the same differences (too optimistic: training sets overlap), for comparison.
 * ``delong_z`` / ``delong_p`` (AUC only): DeLong's paired test on the pooled predictions of repeat 0, with the same
   alternative.  It treats units as independent, which they are not within a student.
 """
@@ -33,9 +43,10 @@ from ...stats import inference as stats
 from ..metrics import LOG_LOSS_EPS, METRICS, weighted_average_precision
 
 __all__ = ["Pooled", "paired_test", "bootstrap_delta", "comparison", "per_rule_rows", "effect_sentence",
-           "ALPHA", "RELATIVE_SIZE_LIMITS"]
+           "estimand_sentence", "interval_level", "ALPHA", "CI_METHOD", "RELATIVE_SIZE_LIMITS"]
 
 ALPHA = 0.05
+CI_METHOD = "corrected repeated cross-validation t (Nadeau & Bengio 2003) over every fold and repeat"
 # Size words for losses are relative to the baseline's value: 1 %, 3 %, 6 % of it.  Our convention, no source.
 RELATIVE_SIZE_LIMITS = (0.01, 0.03, 0.06)
 _BLOCK_ELEMENTS = 4_000_000
@@ -67,16 +78,29 @@ def directional_p(t: float, df: float, two_sided: float, higher_is_better: bool,
     return float(sps.t.sf(t, df) if higher_is_better else sps.t.cdf(t, df))
 
 
+def interval_level(alternative: str) -> float:
+    """Level of the headline interval: ``1 - 2 alpha`` for a one-sided test, ``1 - alpha`` for a two-sided one."""
+    return 1.0 - 2.0 * ALPHA if alternative == "greater" else 1.0 - ALPHA
+
+
 def paired_test(d: np.ndarray, n_train: float, n_test: float, higher_is_better: bool,
                 alternative: str) -> dict:
-    """Corrected resampled and naive t-tests of per-fold differences (NaN folds dropped)."""
+    """The headline procedure on per-fold differences (NaN folds dropped): corrected t, its interval and p.
+
+    Returns ``mean``, ``se``, ``ci_low``, ``ci_high`` (at :func:`interval_level`), ``t``, ``df``, ``p_value`` and
+    the naive t-test's ``p_naive``; every value NaN when fewer than 2 folds are usable.
+    """
     d = np.asarray(d, dtype=float)
     d = d[~np.isnan(d)]
+    nan = float("nan")
     if len(d) < 2 or not n_train > 0 or not n_test > 0:
-        return {"t": float("nan"), "df": max(len(d) - 1, 0), "p_value": float("nan"), "p_naive": float("nan")}
-    corrected = stats.corrected_resampled_ttest(d, n_train, n_test)
+        return {"mean": float(d.mean()) if len(d) else nan, "se": nan, "ci_low": nan, "ci_high": nan, "t": nan,
+                "df": max(len(d) - 1, 0), "p_value": nan, "p_naive": nan}
+    level = interval_level(alternative)
+    corrected = stats.corrected_resampled_ttest(d, n_train, n_test, alpha=1.0 - level)
     naive = stats.naive_ttest(d)
     return {
+        "mean": corrected.mean, "se": corrected.se, "ci_low": corrected.ci_low, "ci_high": corrected.ci_high,
         "t": corrected.t,
         "df": int(corrected.df),
         "p_value": directional_p(corrected.t, corrected.df, corrected.p_value, higher_is_better, alternative),
@@ -213,13 +237,25 @@ def _size_limits(metric: str, baseline_value: float) -> tuple[float, float, floa
     return tuple(limit * scale for limit in RELATIVE_SIZE_LIMITS)
 
 
-def effect_sentence(delta, ci_low, ci_high, p_value, metric: str, subject: str, baseline_value: float) -> str:
-    """Plain-words sentence for a Δ (or why there is none)."""
+def estimand_sentence(n_folds: int, repeats: int, n_train_students: float, alternative: str) -> str:
+    """What the headline estimated and how sure it is, in plain words."""
+    folds = f"{repeats} × {n_folds // max(repeats, 1)}" if repeats > 1 else f"{n_folds}"
+    side = ("one-sided p (the question is whether the rules help)" if alternative == "greater"
+            else "two-sided p")
+    return (f"This is the expected change for a detector trained on about {n_train_students:.0f} students like "
+            f"these, averaged over {folds} student-grouped folds; the interval and the {side} come from one "
+            "corrected t-test that allows for both the test students and the training students.")
+
+
+def effect_sentence(delta, ci_low, ci_high, p_value, metric: str, subject: str, baseline_value: float,
+                    alternative: str = "two-sided") -> str:
+    """Plain-words sentence for a Δ with its interval at :func:`interval_level` (or why there is none)."""
     if not np.isfinite([delta, ci_low, ci_high]).all():
         return f"{subject}: not enough valid folds or students to estimate the change in {METRICS[metric].label}."
     return stats.describe_effect(delta, ci_low, ci_high, p_value, metric=METRICS[metric].label, subject=subject,
                                  higher_is_better=METRICS[metric].higher_is_better,
-                                 size_limits=_size_limits(metric, baseline_value))
+                                 size_limits=_size_limits(metric, baseline_value),
+                                 ci_level=interval_level(alternative), one_sided=alternative == "greater")
 
 
 def _delong(pooled: Pooled, variant: str, baseline: str, alternative: str) -> tuple[float | None, float | None]:
@@ -239,39 +275,37 @@ def comparison(variant: str, baseline: str, metric: str, fold_d: np.ndarray, siz
     higher = METRICS[metric].higher_is_better
     test = paired_test(fold_d, sizes[0], sizes[1], higher, alternative)
     try:
-        delta, low, high = bootstrap_delta(pooled, variant, baseline, metric, n_boot, seed)
+        pooled_delta, boot_low, boot_high = bootstrap_delta(pooled, variant, baseline, metric, n_boot, seed)
     except EvaluationError as exc:
-        delta, low, high = float("nan"), float("nan"), float("nan")
+        pooled_delta, boot_low, boot_high = float("nan"), float("nan"), float("nan")
         notes.append(f"No bootstrap interval for {metric} ({variant} - {baseline}): {exc}")
     z, p_delong = _delong(pooled, variant, baseline, alternative) if metric == "auc" else (None, None)
     return {
         "variant": variant, "baseline": baseline, "metric": metric,
-        "delta": delta, "ci_low": low, "ci_high": high,
-        "ci_method": f"student bootstrap (n_boot={n_boot})",
-        "t": test["t"], "df": test["df"], "p_value": test["p_value"], "p_naive": test["p_naive"],
+        "delta": test["mean"], "ci_low": test["ci_low"], "ci_high": test["ci_high"],
+        "ci_level": interval_level(alternative), "ci_method": CI_METHOD,
+        "se": test["se"], "t": test["t"], "df": test["df"], "p_value": test["p_value"], "p_naive": test["p_naive"],
+        "pooled_delta": pooled_delta, "boot_ci_low": boot_low, "boot_ci_high": boot_high,
+        "boot_method": f"student bootstrap of repeat 0's pooled predictions, 95% (n_boot={n_boot})",
         "delong_z": z, "delong_p": p_delong,
-        "effect": effect_sentence(delta, low, high, test["p_value"], metric, subject, baseline_value),
+        "effect": effect_sentence(test["mean"], test["ci_low"], test["ci_high"], test["p_value"], metric, subject,
+                                  baseline_value, alternative),
     }
 
 
-def per_rule_rows(rules: list[str], metric: str, fold_scores: dict, sizes: tuple[float, float], pooled: Pooled,
-                  n_boot: int, seed: int, alternative: str, notes: list) -> list[dict]:
-    """Drop-one (combined vs combined without the rule) and add-one (mined plus the rule vs mined) rows, Holm-adjusted
-    within each family."""
+def per_rule_rows(rules: list[str], metric: str, fold_scores: dict, sizes: tuple[float, float],
+                  alternative: str) -> list[dict]:
+    """Drop-one (combined vs combined without the rule) and add-one (mined plus the rule vs mined) rows through the
+    headline procedure (mean fold Δ, corrected-t interval and p), Holm-adjusted within each family."""
     higher = METRICS[metric].higher_is_better
     rows = []
     for rule in rules:
         row = {"rule": rule}
         for family, variant, baseline in (("drop", "combined", f"without:{rule}"), ("add", f"plus:{rule}", "mined")):
             d = fold_scores[variant][metric] - fold_scores[baseline][metric]
-            p = paired_test(d, sizes[0], sizes[1], higher, alternative)["p_value"]
-            try:
-                delta, low, high = bootstrap_delta(pooled, variant, baseline, metric, n_boot, seed)
-            except EvaluationError as exc:
-                delta, low, high = float("nan"), float("nan"), float("nan")
-                notes.append(f"No bootstrap interval for rule {rule!r} ({family}): {exc}")
-            row.update({f"{family}_delta": delta, f"{family}_ci_low": low, f"{family}_ci_high": high,
-                        f"{family}_p": p})
+            test = paired_test(d, sizes[0], sizes[1], higher, alternative)
+            row.update({f"{family}_delta": test["mean"], f"{family}_ci_low": test["ci_low"],
+                        f"{family}_ci_high": test["ci_high"], f"{family}_p": test["p_value"]})
         rows.append(row)
     for family in ("drop", "add"):
         adjusted = stats.holm([r[f"{family}_p"] for r in rows]) if rows else []

@@ -33,6 +33,9 @@ from . import assemble as _assemble
 __all__ = ["incremental_value", "incremental_value_precomputed", "make_detector", "evaluate_inputs"]
 
 ALTERNATIVES = ("greater", "two-sided")
+# Chosen by the calibration study (docs/inference.md): one repeat leaves the corrected t conservative and
+# underpowered (it missed a real +0.02 AUC four times in ten); three keep the default run within its time budget.
+DEFAULT_REPEATS = 3
 
 
 SETTINGS = {  # checked in this order; the fold splitter and the learning-curve fractions have their own checks
@@ -91,7 +94,10 @@ def _tasks(inputs, settings, seeds) -> tuple[list, list, list]:
     cv_folds = student_folds(inputs.y, inputs.students, settings["cv"], settings["repeats"], seeds.splits,
                              inputs.task)
     curve_seeds = seeds.curve(len(cv_folds))
-    tasks = [Task("cv", f, s) for f, s in zip(cv_folds, curve_seeds, strict=True)]
+    # The learning curve is a picture of the trend, not a test: its subsamples run in the first repeat's folds
+    # only, which saves four fits per later fold.
+    first = cv_folds[0].repeat if cv_folds else 0
+    tasks = [Task("cv", f, s, f.repeat == first) for f, s in zip(cv_folds, curve_seeds, strict=True)]
     pop_folds = population_folds(inputs.populations) if settings["transfer"] else []
     if len(pop_folds) < 2:
         pop_folds = []
@@ -135,8 +141,8 @@ def _report(results, oof, oof_transfer):
     return IncrementalValueReport(results, oof, oof_transfer)
 
 
-def compute_incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, population=None,
-                              unit="window", mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000,
+def compute_incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=DEFAULT_REPEATS,
+                              population=None, unit="window", mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000,
                               alternative="greater", learning_curve=(0.25, 0.5, 1.0), ablation=True,
                               transfer=True, task="auto", command=None):
     """Same as :func:`incremental_value` but returns ``(results, oof, oof_transfer)`` instead of the report."""
@@ -170,8 +176,8 @@ def evaluate_inputs(inputs, log, rules, mined, data: dict, source, *, model=None
                      seeds, data, [], command, t0)
 
 
-def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, population=None, unit="window",
-                      mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000, alternative="greater",
+def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=DEFAULT_REPEATS, population=None,
+                      unit="window", mined=None, n_jobs=None, random_state=None, verbose=0, n_boot=1000, alternative="greater",
                       learning_curve=(0.25, 0.5, 1.0), ablation=True, transfer=True, task="auto",
                       command=None):
     """Student-grouped evaluation of how much expert rules add to mined log features.
@@ -198,8 +204,9 @@ def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, popu
     cv : int or group-aware splitter, default 5
         An int k runs ``StratifiedGroupKFold(k, shuffle=True)`` by student (regression targets are stratified
         on quantile bins).  Splitters that ignore students are refused.
-    repeats : int, default 1
-        Repetitions of the cross-validation with different splits (seeds derived from ``random_state``).
+    repeats : int, default 3
+        Repetitions of the cross-validation with different splits (seeds derived from ``random_state``); the
+        headline test uses every fold of every repeat (docs/inference.md on the choice of 3).
     population : str, optional
         Column of units with each unit's population (school, class) for the transfer view; None uses the log's
         ``population`` field of the unit's student, if any.
@@ -225,7 +232,7 @@ def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, popu
         own units.
     learning_curve : sequence of float or None, default (0.25, 0.5, 1.0)
         Shares of the training students the model sees (the transformers stay fitted on the whole training
-        fold); None skips the curve.
+        fold), in the folds of the first repeat; None skips the curve.
     ablation : bool, default True
         Run the per-rule variants (two extra fits per rule and fold).
     transfer : bool, default True
@@ -243,9 +250,11 @@ def incremental_value(log, units, y, rules, *, model=None, cv=5, repeats=1, popu
 
     Notes
     -----
-    Δ and its 95 % CI come from a student bootstrap of the pooled out-of-fold predictions of repeat 0; the
-    headline p-value is the corrected resampled t-test on per-fold differences of all repeats (details in
-    :mod:`rulefeat.evaluate.value.compare`).  Folds with one class or fewer than 3 students in their test part are
+    Δ is the mean over every fold and repeat of the per-fold difference; its interval (90 % for the default
+    one-sided test, 95 % two-sided) and the headline p-value come from the one corrected resampled t-test on those
+    differences, so the interval excludes 0 on the side of an improvement exactly when p < 0.05.  A student
+    bootstrap of repeat 0's pooled predictions is kept as a secondary column (details in
+    :mod:`rulefeat.evaluate.value.compare` and docs/inference.md).  Folds with one class or fewer than 3 students in their test part are
     reported in ``results["notes"]`` and left out of the fold statistics.
     """
     return _report(*compute_incremental_value(
@@ -283,8 +292,8 @@ def _precomputed_rules(rules: pd.DataFrame, rule_columns) -> dict:
 
 
 def compute_incremental_value_precomputed(mined, rules, y, students, *, rule_columns=None, population=None,
-                                          model=None, cv=5, repeats=1, n_jobs=None, random_state=None, verbose=0,
-                                          n_boot=1000, alternative="greater", learning_curve=(0.25, 0.5, 1.0),
+                                          model=None, cv=5, repeats=DEFAULT_REPEATS, n_jobs=None,
+                                          random_state=None, verbose=0, n_boot=1000, alternative="greater", learning_curve=(0.25, 0.5, 1.0),
                                           ablation=True, transfer=True, task="auto", command=None):
     """Same as :func:`incremental_value_precomputed` but returns ``(results, oof, oof_transfer)``."""
     t0 = time.perf_counter()
@@ -313,8 +322,8 @@ def compute_incremental_value_precomputed(mined, rules, y, students, *, rule_col
 
 
 def incremental_value_precomputed(mined, rules, y, students, *, rule_columns=None, population=None, model=None,
-                                  cv=5, repeats=1, n_jobs=None, random_state=None, verbose=0, n_boot=1000,
-                                  alternative="greater", learning_curve=(0.25, 0.5, 1.0), ablation=True,
+                                  cv=5, repeats=DEFAULT_REPEATS, n_jobs=None, random_state=None, verbose=0,
+                                  n_boot=1000, alternative="greater", learning_curve=(0.25, 0.5, 1.0), ablation=True,
                                   transfer=True, task="auto", command=None):
     """The evaluation of :func:`incremental_value` on feature tables computed beforehand.
 

@@ -233,7 +233,7 @@ def test_splits_and_mined_scores_line_up_with_incremental_value(planted, diag):
     data, log = planted
     _, oof, _ = compute_incremental_value(log, _windows(data), data.windows["label"], [SKIM, ATTEMPTING, IDLE],
                                           mined=CORRECTNESS, cv=3, random_state=0, ablation=False, transfer=False,
-                                          learning_curve=None, n_boot=20)
+                                          learning_curve=None, n_boot=20, repeats=1)
     oof = oof.sort_values("row")
     units = diag.units()
     np.testing.assert_array_equal(oof.fold.to_numpy(), units.fold.to_numpy())

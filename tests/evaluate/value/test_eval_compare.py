@@ -2,10 +2,21 @@
 
 import numpy as np
 import pytest
+from hypothesis import assume, given, settings
+from hypothesis import strategies as st
+from hypothesis.extra.numpy import arrays
+from scipy import stats as sps
 from sklearn import metrics as skm
 from statsmodels.stats.multitest import multipletests
 
-from rulefeat.evaluate.value.compare import Pooled, bootstrap_delta, comparison, paired_test, per_rule_rows
+from rulefeat.evaluate.value.compare import (
+    ALPHA,
+    Pooled,
+    bootstrap_delta,
+    comparison,
+    paired_test,
+    per_rule_rows,
+)
 from rulefeat.stats import inference as stats
 
 # Example of the corrected resampled t-test hand-computed from the published equations of Nadeau & Bengio (2003)
@@ -25,6 +36,23 @@ def test_paired_test_matches_hand_computed_example_one_sided():
     loss = paired_test(D, 80, 20, False, "greater")
     assert loss["p_value"] == pytest.approx(1 - 0.01682 / 2, abs=1e-5)
     assert paired_test(-D, 80, 20, False, "greater")["p_value"] == pytest.approx(0.01682 / 2, abs=1e-5)
+
+
+@settings(max_examples=150, deadline=None)
+@given(d=arrays(np.float64, st.integers(2, 30), elements=st.floats(-0.2, 0.2, allow_subnormal=False)),
+       n_test=st.integers(10, 400), higher=st.booleans(), alternative=st.sampled_from(["greater", "two-sided"]))
+def test_interval_excludes_zero_exactly_when_p_is_below_alpha(d, n_test, higher, alternative):
+    # One procedure: the interval lies wholly on the side of H1 iff p < alpha (one-sided: the 90% interval's bound
+    # on the side of an improvement; two-sided: the 95% interval excludes 0).
+    r = paired_test(d, 4 * n_test, n_test, higher, alternative)
+    assume(np.isfinite(r["t"]) and abs(abs(r["t"]) - abs(sps.t.ppf(0.05 if alternative == "greater" else 0.025,
+                                                               r["df"]))) > 1e-9)
+    if alternative == "two-sided":
+        excludes = r["ci_low"] > 0 or r["ci_high"] < 0
+    else:
+        excludes = r["ci_low"] > 0 if higher else r["ci_high"] < 0
+    assert excludes == (r["p_value"] < ALPHA)
+    assert r["ci_low"] <= r["mean"] <= r["ci_high"]
 
 
 def test_paired_test_edge_cases():
@@ -98,9 +126,18 @@ def test_comparison_entry_follows_the_schema():
     notes = []
     entry = comparison("combined", "mined", "auc", D, (80, 20), pooled, 200, 1, "greater",
                        "Adding the rules to the mined features", 0.7, notes)
-    assert list(entry) == ["variant", "baseline", "metric", "delta", "ci_low", "ci_high", "ci_method", "t", "df",
-                           "p_value", "p_naive", "delong_z", "delong_p", "effect"]
-    assert entry["ci_method"] == "student bootstrap (n_boot=200)"
+    assert list(entry) == ["variant", "baseline", "metric", "delta", "ci_low", "ci_high", "ci_level", "ci_method",
+                           "se", "t", "df", "p_value", "p_naive", "pooled_delta", "boot_ci_low", "boot_ci_high",
+                           "boot_method", "delong_z", "delong_p", "effect"]
+    assert entry["ci_method"].startswith("corrected repeated cross-validation t")
+    assert entry["boot_method"].endswith("(n_boot=200)")
+    # The headline Δ is the mean fold difference; its interval is the 90% corrected-t one of the one-sided test.
+    ref = stats.corrected_resampled_ttest(D, 80, 20, alpha=0.10)
+    assert (entry["delta"], entry["ci_low"], entry["ci_high"]) == pytest.approx((ref.mean, ref.ci_low, ref.ci_high))
+    assert entry["ci_level"] == pytest.approx(0.90)
+    boot = bootstrap_delta(pooled, "combined", "mined", "auc", 200, 1)
+    assert (entry["pooled_delta"], entry["boot_ci_low"], entry["boot_ci_high"]) == boot
+    assert "90% CI" in entry["effect"] and "one-sided p = " in entry["effect"]
     ref = stats.delong_test(pooled.y, pooled.preds["combined"], pooled.preds["mined"])
     assert entry["delong_z"] == pytest.approx(ref.z)
     assert entry["delong_p"] == pytest.approx(ref.p_value / 2 if ref.z > 0 else 1 - ref.p_value / 2)
@@ -120,11 +157,14 @@ def test_per_rule_rows_holm_matches_statsmodels():
         preds[f"plus:{r}"] = np.clip(pooled.preds["mined"] + rng.normal(0, 0.05, n), 0, 1)
     pooled = Pooled(pooled.y, pooled.groups, preds, {k: np.full(n, 0.5) for k in preds})
     scores = {k: {"auc": rng.normal(0.7, 0.02, 10)} for k in preds}
-    rows = per_rule_rows(["a", "b", "c"], "auc", scores, (80, 20), pooled, 100, 0, "greater", [])
+    rows = per_rule_rows(["a", "b", "c"], "auc", scores, (80, 20), "greater")
     assert [r["rule"] for r in rows] == ["a", "b", "c"]
     for family in ("drop", "add"):
         raw = [r[f"{family}_p"] for r in rows]
         # Reference library: statsmodels' Holm step-down adjustment.
         np.testing.assert_allclose([r[f"{family}_p_holm"] for r in rows], multipletests(raw, method="holm")[1])
     d = scores["combined"]["auc"] - scores["without:a"]["auc"]
-    assert rows[0]["drop_p"] == paired_test(d, 80, 20, True, "greater")["p_value"]
+    test = paired_test(d, 80, 20, True, "greater")
+    assert rows[0]["drop_p"] == test["p_value"]
+    assert (rows[0]["drop_delta"], rows[0]["drop_ci_low"], rows[0]["drop_ci_high"]) == (
+        test["mean"], test["ci_low"], test["ci_high"])

@@ -30,7 +30,7 @@ from rulefeat.rules.transformer import RuleFeatures
 from rulefeat.simulate import tutor_logs
 
 FAST = {"families": ["volume", "correctness"]}
-LIGHT = {"ablation": False, "transfer": False, "learning_curve": None, "n_boot": 100}
+LIGHT = {"ablation": False, "transfer": False, "learning_curve": None, "n_boot": 100, "repeats": 1}
 STATELESS_RULES = """
 [rules.skimmed_hint]
 when = "action == 'hint' and prev(action, within='step') == 'hint' and gap < 3s"
@@ -131,8 +131,11 @@ def test_pooled_and_fold_metrics_agree_with_the_oof_table(full):
         folds = [f["auc"] for f in res["folds"] if f["variant"] == v]
         assert res["variants"][v]["folds"]["auc"]["mean"] == pytest.approx(np.mean(folds))
     headline = res["comparisons"][0]
-    assert headline["delta"] == pytest.approx(roc_auc_score(first["y"], first["combined"])
-                                              - roc_auc_score(first["y"], first["mined"]))
+    assert headline["pooled_delta"] == pytest.approx(roc_auc_score(first["y"], first["combined"])
+                                                     - roc_auc_score(first["y"], first["mined"]))
+    # The headline Δ is the mean over every fold and repeat of the per-fold difference.
+    fold_auc = {v: np.array([f["auc"] for f in res["folds"] if f["variant"] == v]) for v in ("mined", "combined")}
+    assert headline["delta"] == pytest.approx(np.mean(fold_auc["combined"] - fold_auc["mined"]))
     assert headline["ci_low"] <= headline["delta"] <= headline["ci_high"] and headline["df"] == 9
     curve = res["learning_curve"][-1]
     assert curve["mined"] == pytest.approx(res["variants"]["mined"]["folds"]["auc"]["mean"])
@@ -161,7 +164,8 @@ def test_the_report_wraps_the_results(full):
 
 def test_same_seed_same_results_also_in_parallel(sim):
     _, log, X, y = sim
-    kw = dict(model=lr(), mined=FAST, cv=3, random_state=7, n_boot=100, transfer=False, learning_curve=(0.5, 1.0))
+    kw = dict(model=lr(), mined=FAST, cv=3, random_state=7, n_boot=100, transfer=False, learning_curve=(0.5, 1.0),
+              repeats=1)
     a, oof_a, _ = compute_incremental_value(log, X, y, STATELESS_RULES, **kw)
     b, oof_b, _ = compute_incremental_value(log, X, y, STATELESS_RULES, **kw)
     c, oof_c, _ = compute_incremental_value(log, X, y, STATELESS_RULES, n_jobs=2, **kw)
@@ -261,7 +265,7 @@ def test_leaky_out_of_fold_norms_are_optimistic_where_in_fold_ones_are_not(sim):
 
 def test_precomputed_path_equals_the_in_fold_path_for_stateless_features(sim):
     _, log, X, y = sim
-    kw = dict(model=lr(), random_state=4, n_boot=100, transfer=False, learning_curve=(0.5, 1.0))
+    kw = dict(model=lr(), random_state=4, n_boot=100, transfer=False, learning_curve=(0.5, 1.0), repeats=1)
     live, oof_live, _ = compute_incremental_value(log, X, y, STATELESS_RULES, mined={**FAST, "prune": False}, **kw)
     mined = LogFeatures(log, prune=False, **FAST).fit_transform(X)
     rules = RuleFeatures(log, STATELESS_RULES).fit_transform(X)
@@ -278,7 +282,7 @@ def test_regression_target(sim):
         res, oof, _ = compute_incremental_value(log, X, posttest.to_numpy(), STATELESS_RULES,
                                                 model=make_pipeline(SimpleImputer(), StandardScaler(), Ridge()),
                                                 mined=FAST, random_state=0, n_boot=100, ablation=True,
-                                                transfer=False, learning_curve=None)
+                                                transfer=False, learning_curve=None, repeats=1)
     assert res["task"] == "regression" and res["primary_metric"] == "r2"
     assert [(c["metric"], c["variant"]) for c in res["comparisons"]] == [
         ("r2", "combined"), ("r2", "rules"), ("rmse", "combined"), ("rmse", "rules")]
@@ -324,7 +328,7 @@ def test_folds_that_cannot_be_scored_are_noted():
     assert "has only one class" in text and "has only 1 students (fewer than 3)" in text
     assert all(np.isnan(f["auc"]) for f in res["folds"])
     head = res["comparisons"][0]
-    assert np.isnan(head["p_value"]) and np.isfinite(head["delta"])
+    assert np.isnan(head["p_value"]) and np.isnan(head["delta"]) and np.isfinite(head["pooled_delta"])
 
 
 def test_fold_warnings_are_raised_once_and_noted(sim):
@@ -358,7 +362,7 @@ def test_precomputed_transfer_with_given_populations():
     y = (rng.random(180) < 0.35).astype(float)
     mined = pd.DataFrame({"m": y + rng.normal(0, 1.0, 180)})
     rules = pd.DataFrame({"r__rate": y + rng.normal(0, 0.5, 180), "r__any": rng.random(180)})
-    res, _, oof_t = compute_incremental_value_precomputed(mined, rules, y, students, population=school,
+    res, _, oof_t = compute_incremental_value_precomputed(mined, rules, y, students, population=school, repeats=1,
                                                           model=lr(), random_state=0, n_boot=50, ablation=True,
                                                           learning_curve=None)
     assert res["transfer"]["available"] and [d["population"] for d in res["transfer"]["deltas"]] == ["A", "B", "C"]
