@@ -33,7 +33,8 @@ _TESTS = {
 NUM = "num?"
 _RULE = {"+name": "str", "when": "str", "means": "str?", "why": "str?", "report": ["str"], "column": "str?",
          "primary": "str?"}
-_COMPARISON = {"+variant": "str", "+baseline": "str", "+metric": "str", "ci_method": "str?", "effect": "str?",
+_COMPARISON = {"+variant": "str", "+baseline": "str", "+metric": "str", "ci_method": "str?", "boot_method": "str?",
+               "effect": "str?",
                "*": NUM}
 
 REPORT_SHAPE = {

@@ -126,7 +126,7 @@ def test_a_fitted_transformer_scores_the_same_on_the_cluster_as_bound_locally(cl
     pd.testing.assert_frame_equal(scale.transform(here, dlog, units, client=client), here.transform(units))
 
 
-EVALUATION = {"cv": 2, "n_boot": 30, "random_state": 0, "learning_curve": (0.5, 1.0), "ablation": False,
+EVALUATION = {"cv": 2, "repeats": 1, "n_boot": 30, "random_state": 0, "learning_curve": (0.5, 1.0), "ablation": False,
               "mined": {"families": ["volume", "correctness", "timing", "mastery"],
                         "bkt_options": {"n_restarts": 1, "max_iter": 15}}}
 
@@ -140,7 +140,7 @@ def test_the_one_machine_fold_loop_runs_on_the_cluster_through_joblib(client, da
     distributed = pytest.importorskip("distributed")
     with joblib.parallel_config(backend="dask", client=client), distributed.get_task_stream(client) as stream:
         there, oof_there, _ = compute_incremental_value(log, units, "label", demo_rules_path(), n_jobs=2, **options)
-    assert any("run_task" in str(task["key"]) for task in stream.data), "the folds did not run as cluster tasks"
+    assert any(name in str(task["key"]) for task in stream.data for name in ("run_task", "run_chunk")), "the folds did not run as cluster tasks"
     for results in (here, there):
         results.pop("timing")
     assert json.dumps(there, sort_keys=True, default=str) == json.dumps(here, sort_keys=True, default=str)
@@ -158,7 +158,7 @@ def test_the_evaluation_report_equals_one_machine(client, data):
     with distributed.get_task_stream(client) as stream:
         there, oof_there, transfer_there = scale.evaluate.compute_incremental_value(
             dlog, units, "label", demo_rules_path(), client=client, n_jobs=2, **options)
-    assert any("run_task" in str(task["key"]) for task in stream.data), "the folds did not run as cluster tasks"
+    assert any(name in str(task["key"]) for task in stream.data for name in ("run_task", "run_chunk")), "the folds did not run as cluster tasks"
     for results in (here, there):
         results.pop("timing")
     assert json.dumps(there, sort_keys=True, default=str) == json.dumps(here, sort_keys=True, default=str)

@@ -155,7 +155,7 @@ def compute_incremental_value(log, units, y, rules, *, model=None, cv=5, repeats
                            transfer=transfer, command=command, t0=t0)
 
 
-def evaluate_inputs(inputs, log, rules, mined, data: dict, source, *, model=None, cv=5, repeats=1, unit="window",
+def evaluate_inputs(inputs, log, rules, mined, data: dict, source, *, model=None, cv=5, repeats=DEFAULT_REPEATS, unit="window",
                     n_jobs=None, random_state=None, verbose=0, n_boot=1000, alternative="greater",
                     learning_curve=(0.25, 0.5, 1.0), ablation=True, transfer=True, command=None, t0=None):
     """The evaluation of checked ``inputs``: ``(results, oof, oof_transfer)``.
