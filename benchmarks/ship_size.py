@@ -1,4 +1,4 @@
-"""Size of a pickled fitted detector against the events it was fitted on (fitted state only, DESIGN.md contract 8).
+"""Size of a pickled fitted detector against the events it was fitted on (fitted state only, contract 8 in DEVELOPERS.md).
 
 Before contract 8 every fitted transformer pickled its EventLog, so a detector file was at least as large as the
 log.  This prints, for simulated logs of several sizes, the pickled log and the pickled fitted RuleFeatures,

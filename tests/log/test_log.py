@@ -8,22 +8,11 @@ from datetime import datetime, timezone
 import numpy as np
 import pandas as pd
 import pytest
+from _log_data import build, frame
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from rulefeat import EventLog, LogRepairWarning, LogSchemaError, read_events
-
-
-def frame(**cols):
-    base = {"student": ["a", "a", "b"], "time": [0.0, 5.0, 1.0], "action": ["attempt", "hint", "attempt"]}
-    base.update(cols)
-    return pd.DataFrame(base)
-
-
-def build(data, **kw):
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", LogRepairWarning)
-        return EventLog(data, **kw)
 
 
 def issue(log, start):

@@ -6,12 +6,12 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
+from _log_data import build, frame
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from rulefeat import (
     EventLog,
-    LogRepairWarning,
     LogSchemaError,
     ParameterError,
     Rule,
@@ -20,18 +20,6 @@ from rulefeat import (
     RuleSet,
     UnitError,
 )
-
-
-def frame(**cols):
-    base = {"student": ["a", "a", "b"], "time": [0.0, 5.0, 1.0], "action": ["attempt", "hint", "attempt"]}
-    base.update(cols)
-    return pd.DataFrame(base)
-
-
-def build(data, **kw):
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", LogRepairWarning)
-        return EventLog(data, **kw)
 
 
 # -- times: outside the datetime range, infinite, mixed zones ------------------------------------------------
