@@ -15,8 +15,8 @@ of these functions:
   (``\\u202e``), in every format: a right-to-left override cannot make a name read backwards.
 - :func:`plot_text` keeps text away from matplotlib's math-text parser (``$`` escaped), so a population
   named ``$\\foo$`` is drawn as written.
-- :func:`json_text` writes hidden characters of JSON output as ``\\uXXXX`` escapes (the same string when
-  read back).
+- :func:`json_text` writes hidden characters of JSON output as ``\\u`` escapes with four hex digits (the same
+  string when read back).
 
 Rule text itself is refused at load when it holds hidden characters (docs/rules.md, "Text limits").
 """
@@ -110,5 +110,5 @@ def plot_text(text, limit: int = 120) -> str:
 
 
 def json_text(text: str) -> str:
-    """JSON text with hidden characters written as ``\\uXXXX`` escapes (they can only stand inside strings)."""
+    """JSON text with hidden characters written as ``\\u`` escapes with four hex digits (they can only stand inside strings)."""
     return HIDDEN.sub(lambda m: f"\\u{ord(m.group()):04x}", text)

@@ -36,12 +36,17 @@ HOSTILE = st.lists(st.one_of(st.sampled_from(PIECES), st.text(max_size=12)), min
 EVERY = "".join(PIECES[:-1]) + "z" * 5000  # every piece at once
 
 
-@pytest.fixture(scope="module")
-def base() -> IncrementalValueReport:
+def small_log():
+    """A small simulated day and its EventLog (repair warnings silenced), shared by both report fixtures."""
     data = tutor_logs(n_students=30, seed=1, windows_per_student=3)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        log = rulefeat.EventLog(data.events)
+        return data, rulefeat.EventLog(data.events)
+
+
+@pytest.fixture(scope="module")
+def base() -> IncrementalValueReport:
+    data, log = small_log()
     rules = [rulefeat.Rule("skim", when="action == 'hint' and gap < 3s", means="hint skimming"),
              rulefeat.Rule("hasty", when="action == 'attempt' and not correct and gap < 5s")]
     units = data.windows[["student", "start", "end", "label", "population"]]
@@ -286,10 +291,7 @@ def test_inputs_are_file_names_and_hashes_only(base):
 # -- diagnostics: the same rules for their Markdown, HTML and JSON ----------------------------------------------
 @pytest.fixture(scope="module")
 def diagnostics() -> RuleDiagnostics:
-    data = tutor_logs(n_students=30, seed=1, windows_per_student=3)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        log = rulefeat.EventLog(data.events)
+    data, log = small_log()
     rules = [rulefeat.Rule("skim", when="action == 'hint' and gap < 3s")]
     units = data.windows[["student", "start", "end", "label", "population"]]
     return rulefeat.diagnose(log, units, "label", rules, cv=3, population="population", outcomes=data.outcomes,
