@@ -240,7 +240,7 @@ class BufferLog:
         return self._categories[name]
 
     def group_ids(self, scope: str) -> np.ndarray:
-        return self.cached(("group", scope), lambda: _small_group_ids(self._fields, scope))
+        return self.cached(("group", scope), lambda: derive.group_ids(self._fields, scope))
 
     def cached(self, key, compute):
         # Text labels depend on the label tables only, which outlive the call; everything else is per call.
@@ -252,18 +252,3 @@ class BufferLog:
             store[key] = compute()
         return store[key]
 
-
-def _small_group_ids(fields: dict, scope: str) -> np.ndarray:
-    """Dense ids of the (student, scope) groups, -1 without a key: the log's grouping, by numpy alone.
-
-    Any numbering of the groups serves the kernels (they compare ids only); a buffer is small, so
-    ``np.unique`` beats the hash factorisation a log of millions of events uses.
-    """
-    student = fields["student"].astype(np.int64)
-    if scope == "student":
-        return student
-    codes = fields[scope].astype(np.int64)
-    _, ids = np.unique(student * (int(codes.max(initial=-1)) + 2) + codes + 1, return_inverse=True)
-    ids = ids.astype(np.int64).reshape(-1)
-    ids[codes < 0] = -1
-    return ids
