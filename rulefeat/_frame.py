@@ -49,13 +49,26 @@ def factorize_values(values, sort: bool) -> tuple[np.ndarray, pd.Index]:
 def bool_codes(series: pd.Series) -> np.ndarray:
     """int8 1/0 with -1 for missing, from a numpy or nullable boolean column."""
     if isinstance(series.dtype, pd.BooleanDtype):
-        return series.astype("Int8").to_numpy(dtype=np.int8, na_value=-1)
+        return series.to_numpy(dtype=np.int8, na_value=-1)
     return series.to_numpy().astype(np.int8)
+
+
+def category_parts(series: pd.Series) -> tuple[np.ndarray, pd.Index] | None:
+    """(codes, categories) of a categorical column without copying (code -1: missing); None for other dtypes.
+
+    Slices of one table share their categories object, so a caller can key a label lookup on it.
+    """
+    if not isinstance(series.dtype, pd.CategoricalDtype):
+        return None
+    values = series.array
+    return np.asarray(values.codes), values.categories
 
 
 def missing_mask(series: pd.Series) -> np.ndarray:
     return np.asarray(series.isna().to_numpy(), dtype=bool)
 
+
+_NS = np.dtype("datetime64[ns]")
 
 # an offset after a time of day ("T09:15:00+02:00", "09:15Z"), not the day of a date ("2026-03-02")
 _OFFSET = r"[T\s]\d{2}(?::?\d{2}){0,2}(?:[.,]\d+)?\s*(?:[zZ]|[+-]\d{2}(?::?\d{2})?)\s*$"
@@ -86,6 +99,8 @@ def datetimes_out_of_range(series: pd.Series) -> np.ndarray:
 def datetime_ns(series: pd.Series) -> np.ndarray:
     """Nanoseconds since the epoch as int64 (UTC for zone-aware input); NaT and times outside the
     nanosecond range (see :func:`datetimes_out_of_range`) become the int64 minimum."""
+    if series.dtype == _NS:  # already zone-naive nanoseconds: every value fits, NaT is the int64 minimum
+        return series.to_numpy().view("int64")
     series = _utc_naive(series)
     out_of_range = datetimes_out_of_range(series)
     if out_of_range.any():

@@ -62,45 +62,56 @@ class Labels:
 
 
 class Columns:
-    """Turns incoming events into typed arrays of the fields the scorer stores."""
+    """Turns incoming events into typed arrays of the fields the scorer stores.
+
+    Category labels become codes of the scorer's own label tables; a categorical column is looked up once
+    per distinct category (slices of one table share their categories, so the lookup is kept between
+    calls), and students become codes of a student table used to group a call's events.
+    """
 
     def __init__(self, kinds: dict, time_kind: str):
         self.kinds, self.time_kind = kinds, time_kind
         self.labels = {name: Labels() for name, kind in kinds.items() if kind == "category"}
+        self.students = Labels()
+        self._lookups: dict = {}  # field -> (categories, their codes in the label table; -2 not looked up yet)
 
     def rows(self, events) -> dict:
-        """``{field: list of raw values}`` of the fields used, from a dict, a list of dicts or a DataFrame."""
+        """``{field: raw values}`` of the fields used, from a dict, a list of dicts or a DataFrame."""
+        used = ("student", "time", *self.kinds)
         if isinstance(events, dict):
-            return {k: [v] for k, v in events.items() if k in self.kinds or k in ("student", "time")}
+            return {k: [events[k]] for k in used if k in events}
         if isinstance(events, pd.DataFrame):  # columns stay Series: converted whole, not value by value
-            absent = [name for name in ("student", "time", *self.kinds) if name not in events.columns]
+            names = {str(c): c for c in events.columns}
+            absent = [name for name in used if name not in names]
             if absent:
                 raise LiveError(f"LiveScorer.feed: the events table lacks the columns {absent!r}, which the "
                                 "detector reads (a log without them would be refused too). A dict may leave out "
                                 "a field for one event (a missing value); a table needs every column.")
-            return {str(c): events[c] for c in events.columns if str(c) in self.kinds or str(c) in ("student", "time")}
+            return {name: events[names[name]] for name in used}
         if isinstance(events, (list, tuple)):
             if not all(isinstance(e, dict) for e in events):
                 raise LiveError("LiveScorer.feed: events must be a dict, a list of dicts or a DataFrame of the "
                                 "log's columns; the list holds something else.")
-            names = dict.fromkeys(k for e in events for k in e)
-            return {str(k): [e.get(k) for e in events] for k in names}
+            present = {k for e in events for k in e}
+            return {k: [e.get(k) for e in events] for k in used if k in present}
         raise LiveError(f"LiveScorer.feed: events must be a dict, a list of dicts or a DataFrame of the log's "
                         f"columns. Got {type(events).__name__}.")
 
     def convert(self, raw: dict, n: int, first_id: int) -> dict:
-        """Typed arrays of every stored field (missing values where an event lacks one)."""
+        """Typed arrays of every stored field (missing values where an event lacks one); students as codes."""
         for name in ("student", "time", "action"):
             if name not in raw:
                 raise LiveError(f"LiveScorer.feed: the events have no {name!r} field (event {first_id} on); "
                                 f"every event needs 'student', 'time' and 'action'. Fields given: {sorted(raw)!r}.")
-        student = raw["student"]
-        out = {"student": student.tolist() if isinstance(student, pd.Series) else student,
+        out = {"student": self._codes("student", self.students, raw["student"], n),
                "time": self.time_values(raw["time"], "time", first_id)}
+        bad = np.flatnonzero(out["student"] < 0)
+        if len(bad):
+            raise LiveError(f"LiveScorer.feed: event {first_id + bad[0]} has no student.")
         for name, kind in self.kinds.items():
             values = raw.get(name, [None] * n)
             if kind == "category":
-                out[name] = self._codes(name, values, n)
+                out[name] = self._codes(name, self.labels[name], values, n)
             elif kind == "bool":
                 out[name] = self._bools(name, values, first_id)
             elif isinstance(values, pd.Series) and _frame.is_number_dtype(values.dtype):
@@ -108,18 +119,30 @@ class Columns:
             else:
                 values = values.tolist() if isinstance(values, pd.Series) else values
                 out[name] = np.array([np.nan if is_missing(v) else v for v in values], dtype=np.float64)
-        bad = [i for i, s in enumerate(out["student"]) if is_missing(s)]
-        if bad:
-            raise LiveError(f"LiveScorer.feed: event {first_id + bad[0]} has no student.")
         return out
 
-    def _codes(self, name: str, values, n: int) -> np.ndarray:
-        labels = self.labels[name]
+    def _codes(self, name: str, labels: Labels, values, n: int) -> np.ndarray:
         if not isinstance(values, pd.Series):
             return np.fromiter((labels.code(v) for v in values), np.int32, n)
+        parts = _frame.category_parts(values)
+        if parts is not None:
+            codes, categories = parts
+            return self._lookup(name, labels, categories, codes)[codes]  # code -1 reads the last slot: -1
         codes, uniques = pd.factorize(values, use_na_sentinel=True)  # a column: one lookup per label
         lut = np.array([labels.code(u) for u in uniques] + [-1], dtype=np.int32)
         return lut[np.where(codes >= 0, codes, len(uniques))]
+
+    def _lookup(self, name: str, labels: Labels, categories: pd.Index, codes: np.ndarray) -> np.ndarray:
+        """The label-table codes of ``categories`` (ending with -1 for missing), filled in for ``codes``."""
+        known = self._lookups.get(name)
+        if known is None or known[0] is not categories:
+            lut = np.full(len(categories) + 1, -2, dtype=np.int32)
+            lut[-1] = -1
+            known = self._lookups[name] = (categories, lut)
+        lut = known[1]
+        for code in np.unique(codes[lut[codes] == -2]).tolist():  # only labels not seen in this table yet
+            lut[code] = labels.code(categories[code])
+        return lut
 
     def time_values(self, values, what: str, first_id: int | None = None) -> np.ndarray:
         """Times as float seconds on the live axis (numbers as given; datetimes as seconds since 1970)."""
@@ -185,14 +208,20 @@ class StudentBuffer:
     def __len__(self) -> int:
         return len(self.time)
 
-    def merged(self, new: dict, ids: np.ndarray) -> tuple[dict, np.ndarray, np.ndarray, np.ndarray]:
-        """The buffer with new events inserted: each after every event with time <= its own (stable)."""
+    def merged(self, new: dict, ids: np.ndarray, appended: bool = False) -> tuple[dict, np.ndarray, np.ndarray]:
+        """The buffer with new events inserted: each after every event with time <= its own (stable).
+
+        ``appended``: the new events are in time order and none is before the buffer's last one.
+        """
+        if appended:
+            cols = {k: np.concatenate([v, new[k]]) for k, v in self.cols.items()}
+            return cols, np.concatenate([self.time, new["time"]]), np.concatenate([self.ids, ids])
         time = np.concatenate([self.time, new["time"]])
         order = np.argsort(time, kind="stable")
         cols = {k: np.concatenate([v, new[k]])[order] for k, v in self.cols.items()}
-        return cols, time[order], np.concatenate([self.ids, ids])[order], order
+        return cols, time[order], np.concatenate([self.ids, ids])[order]
 
-    def commit(self, cols, time, ids, order) -> None:
+    def commit(self, cols, time, ids) -> None:
         self.cols, self.time, self.ids = cols, time, ids
         self.latest = max(self.latest, float(time[-1]))
         pad = np.zeros((self.fired.shape[0], len(time) - self.fired.shape[1]), dtype=bool)

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import pickle
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 
 import numpy as np
@@ -35,6 +36,7 @@ from ..mined.transformer import LogFeatures
 from ..rules.transformer import RuleFeatures
 from ..units import UnitIndex
 from .buffer import BufferLog, Columns, StudentBuffer
+from .predict import proba_of
 from .reach import earliest_read, reach_of, read_paths
 
 __all__ = ["LiveScorer", "LiveResult", "LIVE_UNITS", "CHECKPOINT_FORMAT"]
@@ -51,16 +53,27 @@ class LiveResult:
 
     ``event_id`` numbers events in order of arrival (0 for the scorer's first event); they are listed
     student by student, each student's in time order.  ``fired`` maps every rule to a bool array
-    aligned with them; ``units`` has one row per closed unit: its keys (``unit_start``, the time of
-    its first event, for steps, problems and sessions), ``n_events``, the rule features (named as the
-    model saw them) and, with a model, ``probability``.
+    aligned with them.  ``unit_columns`` holds a list or array per column of the closed units, one entry
+    per unit: their keys (``unit_start``, the time of the unit's first event, for steps, problems and
+    sessions), ``n_events``, the rule features (named as the model saw them) and, with a model,
+    ``probability``; :attr:`units` is the same as a DataFrame, built when first read.
     """
 
     event_id: np.ndarray
     student: list
     time: np.ndarray
     fired: dict
-    units: pd.DataFrame = field(default_factory=pd.DataFrame)
+    unit_columns: dict = field(default_factory=dict)
+
+    @property
+    def n_units(self) -> int:
+        """How many units closed in the call."""
+        return len(self.unit_columns["n_events"]) if self.unit_columns else 0
+
+    @cached_property
+    def units(self) -> pd.DataFrame:
+        """The closed units as a table, one row per unit (empty when none closed)."""
+        return pd.DataFrame(self.unit_columns)
 
     def firings(self) -> pd.DataFrame:
         """The emitted events as a table: ``event_id``, ``student``, ``time`` and one column per rule."""
@@ -119,6 +132,8 @@ class LiveScorer:
             given = [f for f in _DERIVABLE if fitted.get(f"{f}_derived") is False]
         self.detector, self.tolerance, self.given = detector, tolerance, tuple(given)
         self.predict_params = dict(predict_params or {})
+        self._feature_names = list(self._names or self._rules.feature_names_out_)
+        self._proba = None if self._rest is None else proba_of(self._rest, self._feature_names, self.predict_params)
         self.session_gap = fitted.get("session_gap", 1800.0) if session_gap is None else session_gap
         self.duration_cap = fitted.get("duration_cap", 600.0) if duration_cap is None else duration_cap
         self._check_options()
@@ -190,7 +205,7 @@ class LiveScorer:
             raise UnitError(f"LiveScorer.add_windows: {len(bad)} windows end before they start ({show_rows(bad)}).")
         students, firsts, lasts = (windows[k].tolist() for k in keys)
         rows = np.arange(len(self._window_keys), len(self._window_keys) + len(students))
-        groups = _by_student(students)
+        groups = _window_groups(students)
         for student, at in groups.items():  # all checked before any is added
             gone = self._buffers[student].trimmed_until if student in self._buffers else -np.inf
             early = at[start[at] <= gone]
@@ -224,19 +239,34 @@ class LiveScorer:
         new = self._columns.convert(raw, n, self._next_id)
         self._repair_hints(new)
         ids = np.arange(self._next_id, self._next_id + n, dtype=np.int64)
+        order, groups = _by_student(new.pop("student"))
+        if order is not None:  # one gather per field, then each student's events are a slice
+            new, ids = {k: v[order] for k, v in new.items()}, ids[order]
+        bufs = [self._buffer(self._columns.students.labels[code]) for code, _, _ in groups]
+        in_order = self._in_order(new["time"], groups, bufs)
         staged = []
-        for student, rows in _by_student(new["student"]).items():
-            buf = self._buffer(student)  # an empty buffer may already hold the student's windows
-            part = {k: v[rows] for k, v in new.items() if k != "student"}
-            self._check_late(student, buf, part["time"], ids[rows])
-            merged = buf.merged(part, ids[rows])
-            self._check_reopened(student, buf, merged[0], merged[2])
+        for (code, lo, hi), buf in zip(groups, bufs, strict=True):
+            student = self._columns.students.labels[code]
+            part = {k: v[lo:hi] for k, v in new.items()}
+            if not in_order:
+                self._check_late(student, buf, part["time"], ids[lo:hi])
+            merged = buf.merged(part, ids[lo:hi], appended=in_order)  # in order: nothing is inserted
+            self._check_reopened(student, buf, merged[0], merged[2], len(buf) if in_order else 0)
             staged.append((student, buf, merged))
         for student, buf, merged in staged:
             buf.commit(*merged)
             self._buffers[student] = buf
         self._next_id += n
         return self._process([student for student, _, _ in staged])
+
+    def _in_order(self, time: np.ndarray, groups: list, bufs: list) -> bool:
+        """Whether every student's events come in time order, none before its stream (so none is late)."""
+        starts = np.array([lo for _, lo, _ in groups])
+        before = np.array([max(buf.latest, self._clock) for buf in bufs])
+        if not (time[starts] >= before).all():
+            return False
+        down = np.flatnonzero(time[1:] < time[:-1]) + 1  # only where one student's slice follows another's
+        return bool(np.isin(down, starts).all())
 
     def advance(self, now) -> LiveResult:
         """The stream's clock reached ``now``: close windows and sessions it passes, even without events."""
@@ -277,20 +307,27 @@ class LiveScorer:
                                  f"than tolerance={self.tolerance:g} s allows; nothing of this call was taken. "
                                  "Raise tolerance or score late data in batch.")
 
-    def _check_reopened(self, student, buf: StudentBuffer, cols: dict, ids: np.ndarray) -> None:
+    def _check_reopened(self, student, buf: StudentBuffer, cols: dict, ids: np.ndarray, start: int) -> None:
+        """Refuse a group the student had left; events before ``start`` were checked by earlier calls."""
         for name in self._checked:
             codes = cols[name]
+            if start:
+                known = codes[start:][codes[start:] >= 0]
+                before = codes[:start][codes[:start] >= 0]
+                if not len(known) or (len(before) and (known == before[-1]).all()):
+                    continue  # the new events start no group
             at = np.flatnonzero(codes >= 0)
             starts = at[np.concatenate([[True], codes[at][1:] != codes[at][:-1]])] if len(at) else at
-            seen = set(buf.closed.get(name, ()))
-            for pos in starts:
-                if codes[pos] in seen:
-                    label = self._columns.labels[name].labels[codes[pos]]
+            closed, seen = buf.closed.get(name, ()), set()
+            for pos in starts.tolist():
+                code = int(codes[pos])
+                if code in seen or code in closed:
+                    label = self._columns.labels[name].labels[code]
                     raise LiveError(f"LiveScorer.feed: event {ids[pos]} (student {student!r}) returns to {name} "
                                     f"{label!r}, which the student had left; live scoring closes a {name} when "
                                     f"the student moves on, and batch would merge both visits. Give the visits "
                                     f"distinct {name} labels, or score this log in batch.")
-                seen.add(codes[pos])
+                seen.add(code)
 
     # -- one round: evaluate, finalise, close units, trim -----------------------------------------------
     def _process(self, students: list, flush: bool = False) -> LiveResult:
@@ -299,7 +336,7 @@ class LiveScorer:
         units = self._close_units(students, flush)
         for student in students:
             self._trim(self._buffers[student])
-        return LiveResult(*emitted, units=units)
+        return LiveResult(*emitted, unit_columns=units)
 
     def _empty(self) -> LiveResult:
         return LiveResult(np.zeros(0, np.int64), [], np.zeros(0), {n: np.zeros(0, bool) for n in self._rule_names})
@@ -361,7 +398,7 @@ class LiveScorer:
         return "session" not in self.given and self._watermark(buf) - buf.time[-1] > self.session_gap
 
     # -- units ------------------------------------------------------------------------------------------
-    def _close_units(self, students: list, flush: bool) -> pd.DataFrame:
+    def _close_units(self, students: list, flush: bool) -> dict:
         found = []  # (keys dict, positions, start_time, buffer)
         for student in students:
             buf = self._buffers[student]
@@ -369,9 +406,7 @@ class LiveScorer:
                 found.extend(self._closed_windows(student, buf, flush))
             elif len(buf):
                 found.extend(self._closed_groups(student, buf, flush))
-        if not found:
-            return pd.DataFrame()
-        return self._unit_table(found)
+        return self._unit_table(found) if found else {}
 
     def _closed_windows(self, student, buf: StudentBuffer, flush: bool) -> list:
         if not len(buf.windows):
@@ -421,7 +456,7 @@ class LiveScorer:
         keys["unit_start"] = start
         return keys
 
-    def _unit_table(self, found: list) -> pd.DataFrame:
+    def _unit_table(self, found: list) -> dict:
         sizes = np.array([len(pos) for _, pos, _, _ in found], dtype=np.int64)
         fired = np.concatenate([buf.fired[:, pos] for _, pos, _, buf in found], axis=1)
         time = np.concatenate([buf.time[pos] for _, pos, _, buf in found])
@@ -430,18 +465,17 @@ class LiveScorer:
                           start_time=np.array([s for _, _, s, _ in found], dtype=np.float64),
                           students=np.zeros(len(found), dtype=np.int64))
         columns = self._rules.summarise(Aggregator(index, time), dict(zip(self._rule_names, fired, strict=True)))
-        features = pd.DataFrame({name: np.asarray(columns[name], dtype=np.float64)
-                                 for name in self._rules.feature_names_out_})
-        table = pd.DataFrame([keys for keys, _, _, _ in found])
+        features = np.zeros((len(found), len(self._feature_names)))
+        for j, name in enumerate(self._rules.feature_names_out_):
+            features[:, j] = columns[name]
+        table = {key: [keys[key] for keys, _, _, _ in found] for key in found[0][0]}
         table["n_events"] = sizes
-        if self._names is not None:
-            features.columns = self._names
-        table = pd.concat([table, features], axis=1)
-        if self._rest is not None:
+        table.update(zip(self._feature_names, features.T, strict=True))
+        if self._proba is not None:
             p = np.full(len(found), np.nan)
             full = sizes > 0  # a unit without events has no score, as bind(...) refuses it
             if full.any():
-                p[full] = self._rest.predict_proba(features[full], **self.predict_params)[:, 1]
+                p[full] = self._proba(features[full])
             table["probability"] = p
         return table
 
@@ -525,7 +559,20 @@ class _Reads:
         return self._starts[scope]
 
 
-def _by_student(students: list) -> dict:
+def _by_student(codes: np.ndarray) -> tuple[np.ndarray | None, list]:
+    """(the order putting the events student by student, or None if they already are; each student's
+    ``(code, first, end)`` slice of it, in order of the student's first event in the call)."""
+    if len(codes) == 1 or (codes[1:] == codes[:-1]).all():
+        return None, [(int(codes[0]), 0, len(codes))]
+    order = np.argsort(codes, kind="stable")
+    ordered = codes[order]
+    cut = np.flatnonzero(ordered[1:] != ordered[:-1]) + 1
+    lows, highs = np.concatenate([[0], cut]), np.append(cut, len(codes))
+    seq = np.argsort(order[lows])
+    return order, [(int(ordered[lo]), int(lo), int(hi)) for lo, hi in zip(lows[seq], highs[seq], strict=True)]
+
+
+def _window_groups(students: list) -> dict:
     groups: dict = {}
     for i, student in enumerate(students):
         groups.setdefault(student, []).append(i)
