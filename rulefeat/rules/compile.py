@@ -53,10 +53,10 @@ class Evaluator:
     array per node of the program.
     """
 
-    def __init__(self, log, program: Program, norms: dict | None, plan: Plan | None = None):
+    def __init__(self, log, program: Program, norms: dict | None, plan: Plan | None = None, release: bool = True):
         self.log, self.n, self.program, self.norms = log, len(log), program, norms
         self.memo: dict[Node, np.ndarray] = {}
-        self._uses = dict(plan.uses) if plan is not None else None
+        self._uses = dict(plan.uses) if plan is not None and release else None
         self._early: dict[Node, set] = {}
         self._label_cache: dict = {}
 
@@ -65,14 +65,15 @@ class Evaluator:
         return self.program._types[node]
 
     def value(self, node: Node) -> np.ndarray:
-        if node not in self.memo:
-            self.memo[node] = _EVALUATE[type(node)](self, node)
+        out = self.memo.get(node)
+        if out is None:
+            out = self.memo[node] = _EVALUATE[type(node)](self, node)
             if self._uses is not None:
                 early = self._early.pop(node, ())
                 for child in _distinct_children(node):
                     if child not in early:
                         self.release(child)
-        return self.memo[node]
+        return out
 
     def consumed(self, parent: Node, child: Node) -> None:
         """``parent`` has read ``child`` for the last time before finishing (e.g. one operand of a fold)."""
@@ -88,7 +89,12 @@ class Evaluator:
 
     def array(self, node: Node) -> np.ndarray:
         """The node's value over every event (constants broadcast, read-only)."""
-        return np.broadcast_to(self.value(node), (self.n,))
+        value = self.value(node)
+        if value.shape != (self.n,):
+            return np.broadcast_to(value, (self.n,))
+        view = value.view()
+        view.flags.writeable = False
+        return view
 
     def fill(self, node: Node):
         return _FILL[self.type(node).kind]
@@ -192,7 +198,10 @@ def _logic(ev: Evaluator, node: Logic) -> np.ndarray:
 
 def _tri(holds: np.ndarray, missing: np.ndarray) -> np.ndarray:
     holds, missing = np.asarray(holds), np.asarray(missing)
-    out = np.array(np.broadcast_to(holds, np.broadcast_shapes(holds.shape, missing.shape)), dtype=np.uint8)
+    if holds.shape == missing.shape:
+        out = holds.astype(np.uint8)
+    else:
+        out = np.array(np.broadcast_to(holds, np.broadcast_shapes(holds.shape, missing.shape)), dtype=np.uint8)
     out <<= 1  # bool 1/0 -> TRUE (2) / FALSE (0)
     np.copyto(out, UNKNOWN, where=missing)
     return out
@@ -449,14 +458,19 @@ class Program:
         self._state, self._norm_labels = state, labels
         return self
 
-    def evaluate(self, log) -> dict[str, np.ndarray]:
-        """Rule name -> bool array over ``log``'s events (log order): where the rule definitely holds."""
+    def evaluate(self, log, *, release: bool = True) -> dict[str, np.ndarray]:
+        """Rule name -> bool array over ``log``'s events (log order): where the rule definitely holds.
+
+        ``release`` frees each sub-expression's array once its last reader has it, which bounds memory
+        on a big log; ``False`` keeps them to the end, which costs less on a small one (the few hundred
+        events of a live call, where the bookkeeping outweighs the arrays).  The firings are the same.
+        """
         self._check_log(log, "Program.evaluate")
         if not self.is_fitted:
             calls = ", ".join(show(c) for c in self._norm_calls[:3])
             raise EvaluationError(f"Program.evaluate: the rules use fitted norms ({calls}); call "
                                   "program.fit(train_log) first")
-        fired = Evaluator(log, self, self._state, self._plan()).rules(self._plan().names)
+        fired = Evaluator(log, self, self._state, self._plan(), release).rules(self._plan().names)
         return {rule.name: fired[rule.name] for rule in self.rules}
 
     def probe_values(self, log) -> tuple[np.ndarray, str]:

@@ -355,7 +355,7 @@ class LiveScorer:
         cats["student"] = pd.RangeIndex(len(bufs))
         view = BufferLog(fields, kinds, cats, self._text, session_gap=self.session_gap,
                          duration_cap=self.duration_cap)
-        fired = self._program.evaluate(view)
+        fired = self._program.evaluate(view, release=False)  # a few hundred events: keep every array
         table = np.stack([fired[name] for name in self._rule_names]) if self._rule_names else np.zeros((0, len(view)))
         session = view.values("session")
         ids, who, times, cols = [], [], [], []

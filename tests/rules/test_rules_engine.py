@@ -79,6 +79,17 @@ def test_arrays_are_released_after_their_last_reader(monkeypatch):
     np.testing.assert_array_equal(fired["wide"], reference)
 
 
+def test_keeping_every_array_gives_the_same_firings():
+    log = _log()
+    texts = {"base": "action == 'hint'", "twice": "base and prev(base) and not prev(base, 2)",
+             "wide": " or ".join(f"count_recent(action == 'attempt', seconds={k + 1}s) > 2" for k in range(5))}
+    program = RuleSet([Rule(n, when=t) for n, t in texts.items()]).bind(log)
+    kept, freed = program.evaluate(log, release=False), program.evaluate(log)
+    assert list(kept) == list(freed)
+    for name in texts:
+        np.testing.assert_array_equal(kept[name], freed[name])
+
+
 def test_a_rule_used_twice_in_one_fold_stays_available():
     log = _log()
     rules = RuleSet([Rule("r0", when="action == 'hint'"), Rule("r1", when="r0 and r0 and prev(r0)")])
