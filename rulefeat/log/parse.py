@@ -62,7 +62,7 @@ def resolve_columns(data: pd.DataFrame, columns: dict | None) -> dict[str, str]:
         raise LogSchemaError(f"EventLog: column names must be unique; {dup!r} appear more than once. Rename them.")
     if len(data) == 0:
         raise LogSchemaError("EventLog: the event table is empty (0 rows); there is nothing to build a log from.")
-    mapping = _check_mapping(columns or {}, names)
+    mapping = check_column_mapping(columns or {}, names)
     for fld in CANONICAL:
         if fld not in mapping and fld in names and fld not in mapping.values():
             mapping[fld] = fld
@@ -82,23 +82,25 @@ def resolve_columns(data: pd.DataFrame, columns: dict | None) -> dict[str, str]:
     return mapping
 
 
-def _check_mapping(columns: dict, names: list[str]) -> dict[str, str]:
+def check_column_mapping(columns: dict, names: list[str] | None, where: str = "EventLog") -> dict[str, str]:
+    """The ``{field: column}`` mapping checked: known fields, one column each, present among ``names``
+    (not checked when ``names`` is None: a live scorer sees its columns only as events arrive)."""
     mapping: dict[str, str] = {}
     seen: dict[str, str] = {}
     for fld, col in columns.items():
         if fld not in CANONICAL:
             raise LogSchemaError(
-                f"EventLog: unknown field {fld!r} in 'columns'.{did_you_mean(fld, CANONICAL)} "
+                f"{where}: unknown field {fld!r} in 'columns'.{did_you_mean(fld, CANONICAL)} "
                 f"Fields are {list(CANONICAL)!r}; other columns are kept as they are without mapping."
             )
-        if col not in names:
+        if names is not None and col not in names:
             raise LogSchemaError(
-                f"EventLog: 'columns' maps {fld!r} to {col!r}, which is not a column of the table."
+                f"{where}: 'columns' maps {fld!r} to {col!r}, which is not a column of the table."
                 f"{did_you_mean(col, names)} Columns given: {names!r}."
             )
         if col in seen:
             raise LogSchemaError(
-                f"EventLog: 'columns' points both {seen[col]!r} and {fld!r} at column {col!r}; "
+                f"{where}: 'columns' points both {seen[col]!r} and {fld!r} at column {col!r}; "
                 "each field needs its own column."
             )
         seen[col] = fld
@@ -240,13 +242,13 @@ def check_correct_values(correct_values) -> None:
                              f"{correct_values!r} instead.")
 
 
-def check_mappings(columns, actions) -> None:
+def check_mappings(columns, actions, where: str = "EventLog") -> None:
     """``columns`` and ``actions`` are mappings (or None): a list would lose which field each column is."""
     examples = {"columns": "{'student': 'learner_id', 'time': 'timestamp'}",
                 "actions": "{'hint': ['HINT_REQUEST', 'HINT_SHOWN']}"}
     for name, value in (("columns", columns), ("actions", actions)):
         if value is not None and not isinstance(value, Mapping):
-            raise ParameterError(f"The {name!r} parameter of EventLog must be None or a mapping, e.g. "
+            raise ParameterError(f"The {name!r} parameter of {where} must be None or a mapping, e.g. "
                                  f"{examples[name]}. Got {value!r} instead.")
 
 

@@ -69,31 +69,32 @@ class Columns:
     calls), and students become codes of a student table used to group a call's events.
     """
 
-    def __init__(self, kinds: dict, time_kind: str):
+    def __init__(self, kinds: dict, time_kind: str, sources: dict | None = None):
         self.kinds, self.time_kind = kinds, time_kind
+        self.sources = dict(sources or {})  # field -> the name events give it (an EventLog 'columns' mapping)
         self.labels = {name: Labels() for name, kind in kinds.items() if kind == "category"}
         self.students = Labels()
         self._lookups: dict = {}  # field -> (categories, their codes in the label table; -2 not looked up yet)
 
     def rows(self, events) -> dict:
         """``{field: raw values}`` of the fields used, from a dict, a list of dicts or a DataFrame."""
-        used = ("student", "time", *self.kinds)
+        used = {name: self.sources.get(name, name) for name in ("student", "time", *self.kinds)}
         if isinstance(events, dict):
-            return {k: [events[k]] for k in used if k in events}
+            return {k: [events[src]] for k, src in used.items() if src in events}
         if isinstance(events, pd.DataFrame):  # columns stay Series: converted whole, not value by value
             names = {str(c): c for c in events.columns}
-            absent = [name for name in used if name not in names]
+            absent = [src for src in used.values() if src not in names]
             if absent:
                 raise LiveError(f"LiveScorer.feed: the events table lacks the columns {absent!r}, which the "
                                 "detector reads (a log without them would be refused too). A dict may leave out "
                                 "a field for one event (a missing value); a table needs every column.")
-            return {name: events[names[name]] for name in used}
+            return {k: events[names[src]] for k, src in used.items()}
         if isinstance(events, (list, tuple)):
             if not all(isinstance(e, dict) for e in events):
                 raise LiveError("LiveScorer.feed: events must be a dict, a list of dicts or a DataFrame of the "
                                 "log's columns; the list holds something else.")
             present = {k for e in events for k in e}
-            return {k: [e.get(k) for e in events] for k in used if k in present}
+            return {k: [e.get(src) for e in events] for k, src in used.items() if src in present}
         raise LiveError(f"LiveScorer.feed: events must be a dict, a list of dicts or a DataFrame of the log's "
                         f"columns. Got {type(events).__name__}.")
 
@@ -101,8 +102,10 @@ class Columns:
         """Typed arrays of every stored field (missing values where an event lacks one); students as codes."""
         for name in ("student", "time", "action"):
             if name not in raw:
-                raise LiveError(f"LiveScorer.feed: the events have no {name!r} field (event {first_id} on); "
-                                f"every event needs 'student', 'time' and 'action'. Fields given: {sorted(raw)!r}.")
+                named = f" (named {self.sources[name]!r} by the 'columns' mapping)" if name in self.sources else ""
+                raise LiveError(f"LiveScorer.feed: the events have no {name!r} field{named} (event {first_id} "
+                                f"on); every event needs 'student', 'time' and 'action'. Fields found: "
+                                f"{sorted(raw)!r}.")
         out = {"student": self._codes("student", self.students, raw["student"], n),
                "time": self.time_values(raw["time"], "time", first_id)}
         bad = np.flatnonzero(out["student"] < 0)

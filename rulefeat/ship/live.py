@@ -32,6 +32,7 @@ from sklearn.pipeline import FeatureUnion, Pipeline
 from .._aggregate import Aggregator
 from .._text import show_rows
 from ..errors import LateEventError, LiveError, ParameterError, UnitError
+from ..log import parse
 from ..mined.transformer import LogFeatures
 from ..rules.transformer import RuleFeatures
 from ..units import UnitIndex
@@ -94,6 +95,10 @@ class LiveScorer:
     windows : DataFrame, optional
         For a detector of ``unit="window"``: the windows to score (student, start, end); more can be
         added with :meth:`add_windows` before their events arrive.
+    columns : dict, optional
+        ``{field: name}`` for events that name fields otherwise, as :class:`~rulefeat.EventLog`'s
+        ``columns`` (e.g. ``{"student": "learner", "time": "ts"}``); the same keys of a dict event and
+        columns of a table are read.  Default: the log's field names.
     tolerance : float, default 0
         Seconds an event may arrive behind the student's latest event (or the clock) and still be
         inserted in time order; later ones raise :class:`~rulefeat.errors.LateEventError`.  Firings
@@ -124,13 +129,14 @@ class LiveScorer:
     ([True, True], [['b', 's1', 1.0]])
     """
 
-    def __init__(self, detector, *, windows=None, tolerance: float = 0.0, given=None, session_gap=None,
-                 duration_cap=None, predict_params=None):
+    def __init__(self, detector, *, windows=None, columns=None, tolerance: float = 0.0, given=None,
+                 session_gap=None, duration_cap=None, predict_params=None):
         self._rules, self._names, self._rest = _parts(detector)
         fitted = getattr(self._rules, "log_settings_", {})
         if given is None:
             given = [f for f in _DERIVABLE if fitted.get(f"{f}_derived") is False]
         self.detector, self.tolerance, self.given = detector, tolerance, tuple(given)
+        self.columns = columns
         self.predict_params = dict(predict_params or {})
         self._feature_names = list(self._names or self._rules.feature_names_out_)
         self._proba = None if self._rest is None else proba_of(self._rest, self._feature_names, self.predict_params)
@@ -148,7 +154,8 @@ class LiveScorer:
         self._paths = read_paths(self._program.trees)
         self._stored = self._stored_fields()
         self._checked = [f for f in ("step", "problem", "session") if f in self._stored and f in self._scopes()]
-        self._columns = Columns(self._stored, self._rules.time_kind_)
+        self._columns = Columns(self._stored, self._rules.time_kind_,
+                                parse.check_column_mapping(dict(columns or {}), None, "LiveScorer"))
         self._buffers: dict = {}
         self._next_id, self._next_window = 0, 0
         self._clock, self._closed = -np.inf, False
@@ -160,6 +167,7 @@ class LiveScorer:
 
     # -- construction -------------------------------------------------------------------------------
     def _check_options(self) -> None:
+        parse.check_mappings(self.columns, None, "LiveScorer")
         if not isinstance(self.tolerance, (int, float)) or not self.tolerance >= 0:
             raise ParameterError(f"The 'tolerance' parameter of LiveScorer must be a number of seconds >= 0. "
                                  f"Got {self.tolerance!r} instead.")
@@ -484,12 +492,16 @@ class LiveScorer:
         n = len(buf)
         if n < buf.next_check:  # the bound is worked out again only after the buffer grew by half
             return
-        keep = min(self._needed_from(buf), buf.n_final)
+        keep = buf.n_final
         if self.unit.name == "window" and len(buf.windows):
             keep = min(keep, int(np.searchsorted(buf.time, buf.windows[:, 0].min(), side="left")))
         elif self.unit.name != "window":
             keep = min(keep, buf.unit_from)
-        if keep >= 8 or (keep > 0 and 2 * keep > n):
+        # Cutting needs keep >= 8 (or over half the buffer); the rules' reach only lowers keep, so it is
+        # worked out only when the open units and pending events would let enough go.
+        if _worth_cutting(keep, n):
+            keep = min(keep, self._needed_from(buf))
+        if _worth_cutting(keep, n):
             for name in self._checked:  # groups wholly let go have closed; the first one kept goes on
                 codes, kept = buf.cols[name][:keep], buf.cols[name][keep:]
                 going_on = kept[kept >= 0][:1].tolist()
@@ -511,7 +523,8 @@ class LiveScorer:
         you wrote yourself.
         """
         state = {"format": CHECKPOINT_FORMAT, "detector": self.detector,
-                 "options": {"tolerance": self.tolerance, "given": self.given, "session_gap": self.session_gap,
+                 "options": {"columns": self.columns, "tolerance": self.tolerance, "given": self.given,
+                             "session_gap": self.session_gap,
                              "duration_cap": self.duration_cap, "predict_params": self.predict_params},
                  "columns": self._columns.labels, "buffers": self._buffers, "window_keys": self._window_keys,
                  "next_id": self._next_id, "clock": self._clock, "closed": self._closed, "repairs": self.repairs}
@@ -577,6 +590,10 @@ def _window_groups(students: list) -> dict:
     for i, student in enumerate(students):
         groups.setdefault(student, []).append(i)
     return {s: np.asarray(rows, dtype=np.int64) for s, rows in groups.items()}
+
+
+def _worth_cutting(keep: int, n: int) -> bool:
+    return keep >= 8 or (keep > 0 and 2 * keep > n)
 
 
 def _group_starts(codes: np.ndarray) -> np.ndarray:

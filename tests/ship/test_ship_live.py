@@ -392,3 +392,19 @@ def test_a_rules_only_detector_of_make_detector_scores_live_as_in_batch():
     merged = units.assign(batch=batch).merge(table, on=["student", "step"])
     assert len(merged) == len(units) and same(merged["probability"], merged["batch"])
     assert "rules__skimmed_hint__count" in table.columns
+
+
+def test_events_named_otherwise_are_read_through_a_columns_mapping():
+    names = {"student": "learner", "time": "ts", "step": "item"}
+    events = random_events(np.random.default_rng(8), 2, 25)
+    plain = replay(LiveScorer(STEP_DETECTOR), events, [1, 6])
+    renamed = replay(LiveScorer(STEP_DETECTOR, columns=names), events.rename(columns=names), [1, 6])
+    for name in RULES.names:
+        assert np.array_equal(live_firings(renamed, len(events))[name], live_firings(plain, len(events))[name])
+    pd.testing.assert_frame_equal(live_units(renamed), live_units(plain))
+    with pytest.raises(rulefeat.LogSchemaError, match=r"LiveScorer: unknown field 'stepp' in 'columns'"):
+        LiveScorer(STEP_DETECTOR, columns={"stepp": "item"})
+    with pytest.raises(rulefeat.errors.ParameterError, match=r"'columns' parameter of LiveScorer must be"):
+        LiveScorer(STEP_DETECTOR, columns=["learner"])
+    with pytest.raises(LiveError, match=r"no 'time' field \(named 'ts' by the 'columns' mapping\)"):
+        LiveScorer(STEP_DETECTOR, columns=names).feed({"learner": "a", "time": 1.0, "action": "hint"})
