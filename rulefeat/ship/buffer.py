@@ -143,8 +143,10 @@ class Columns:
             lut[-1] = -1
             known = self._lookups[name] = (categories, lut)
         lut = known[1]
-        for code in np.unique(codes[lut[codes] == -2]).tolist():  # only labels not seen in this table yet
-            lut[code] = labels.code(categories[code])
+        new = lut[codes] == -2  # labels not looked up yet
+        if new.any():
+            for code in np.unique(codes[new]).tolist():
+                lut[code] = labels.code(categories[code])
         return lut
 
     def time_values(self, values, what: str, first_id: int | None = None) -> np.ndarray:

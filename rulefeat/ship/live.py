@@ -320,10 +320,13 @@ class LiveScorer:
         for name in self._checked:
             codes = cols[name]
             if start:
+                low, high, last = codes[start:].min(), codes[start:].max(), codes[start - 1]
+                if low == high == last >= 0:
+                    continue  # the new events go on with the student's group: they start none
                 known = codes[start:][codes[start:] >= 0]
                 before = codes[:start][codes[:start] >= 0]
                 if not len(known) or (len(before) and (known == before[-1]).all()):
-                    continue  # the new events start no group
+                    continue
             at = np.flatnonzero(codes >= 0)
             starts = at[np.concatenate([[True], codes[at][1:] != codes[at][:-1]])] if len(at) else at
             closed, seen = buf.closed.get(name, ()), set()
@@ -389,7 +392,7 @@ class LiveScorer:
         if flush:
             return n
         mark = self._watermark(buf)
-        fixed = int(np.searchsorted(buf.time, mark, side="right"))
+        fixed = n if mark >= buf.time[-1] else int(np.searchsorted(buf.time, mark, side="right"))
         ahead = self.reach.ahead
         if ahead == 0:
             return max(buf.n_final, fixed)
@@ -417,8 +420,8 @@ class LiveScorer:
         return self._unit_table(found) if found else {}
 
     def _closed_windows(self, student, buf: StudentBuffer, flush: bool) -> list:
-        if not len(buf.windows):
-            return []
+        if not len(buf.windows) or (not flush and buf.windows[0, 1] > self._watermark(buf)):
+            return []  # windows close in order of their end: the first has not
         ends = buf.windows[:, 1]
         hi = np.searchsorted(buf.time, ends, side="left")
         ok = (hi <= buf.n_final) & ((ends <= self._watermark(buf)) | flush)
@@ -567,8 +570,7 @@ class _Reads:
     def group_start(self, scope: str) -> np.ndarray:
         if scope not in self._starts:
             codes = self.buf.session if scope == "session" else self.buf.cols[scope]
-            known = codes[codes >= 0]
-            self._starts[scope] = _group_starts(np.append(codes, known[-1] if len(known) else -1))
+            self._starts[scope] = _group_starts(codes)
         return self._starts[scope]
 
 
@@ -597,12 +599,21 @@ def _worth_cutting(keep: int, n: int) -> bool:
 
 
 def _group_starts(codes: np.ndarray) -> np.ndarray:
-    """Index of the first event of each event's group (its own index where the key is missing)."""
-    out = np.arange(len(codes))
-    ok = codes >= 0
-    if ok.any():
-        uniq, first = np.unique(codes[ok], return_index=True)
-        out[ok] = np.flatnonzero(ok)[first][np.searchsorted(uniq, codes[ok])]
+    """Per event, and for one more to come in the open group, the index of the first event of its group
+    (its own index where the key is missing).
+
+    A student's groups are runs of the keyed events: the scorer refuses a step or problem the student
+    had left (and given sessions), and derived sessions are runs by construction.
+    """
+    out = np.arange(len(codes) + 1)
+    at = np.flatnonzero(codes >= 0)
+    if len(at):
+        keys = codes[at]
+        new = np.empty(len(at), dtype=bool)
+        new[0] = True
+        np.not_equal(keys[1:], keys[:-1], out=new[1:])
+        out[at] = at[new][np.cumsum(new) - 1]
+        out[-1] = out[at[-1]]
     return out
 
 
