@@ -82,7 +82,11 @@ class Columns:
         if isinstance(events, dict):
             return {k: [events[src]] for k, src in used.items() if src in events}
         if isinstance(events, pd.DataFrame):  # columns stay Series: converted whole, not value by value
-            names = {str(c): c for c in events.columns}
+            names = events.columns
+            if any(src not in names for src in used.values()):  # columns named by numbers, say
+                names = {str(c): c for c in events.columns}
+            else:
+                names = {src: src for src in used.values()}
             absent = [src for src in used.values() if src not in names]
             if absent:
                 raise LiveError(f"LiveScorer.feed: the events table lacks the columns {absent!r}, which the "
