@@ -10,6 +10,8 @@ derived fields computed by the log build's own code (:func:`rulefeat.log.derive.
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 import pandas as pd
 
@@ -17,12 +19,18 @@ from .. import _frame
 from ..errors import LiveError
 from ..log import derive
 
-__all__ = ["Labels", "Columns", "StudentBuffer", "BufferLog", "DERIVED_KINDS"]
+__all__ = ["Labels", "Columns", "StudentBuffer", "BufferLog", "DERIVED_KINDS", "range_index"]
 
 DERIVED_KINDS = {"gap": "number", "duration": "number", "session": "category", "step_position": "number",
                  "problem_position": "number"}
 _BOOL = {True: 1, False: 0, "true": 1, "false": 0, "True": 1, "False": 0}  # 1 == True, 0 == False as keys
 _DTYPE = {"number": np.float64, "bool": np.int8, "category": np.int32}
+
+
+@lru_cache(maxsize=1024)
+def range_index(n: int) -> pd.RangeIndex:
+    """``RangeIndex(n)``, shared: the labels of numbered categories (students of a call, derived sessions)."""
+    return pd.RangeIndex(n)
 
 
 def is_missing(value) -> bool:
@@ -255,7 +263,7 @@ class BufferLog:
         self._categories = categories
         if "session" not in categories:
             n = int(self._fields["session"].max(initial=-1)) + 1
-            self._categories = {**categories, "session": pd.RangeIndex(n)}
+            self._categories = {**categories, "session": range_index(n)}
         self._text, self._cache = text_cache, {}
 
     def __len__(self) -> int:

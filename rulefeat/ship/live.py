@@ -36,7 +36,7 @@ from ..log import parse
 from ..mined.transformer import LogFeatures
 from ..rules.transformer import RuleFeatures
 from ..units import UnitIndex
-from .buffer import BufferLog, Columns, StudentBuffer
+from .buffer import BufferLog, Columns, StudentBuffer, range_index
 from .predict import proba_of
 from .reach import earliest_read, reach_of, read_paths
 
@@ -273,8 +273,11 @@ class LiveScorer:
         before = np.array([max(buf.latest, self._clock) for buf in bufs])
         if not (time[starts] >= before).all():
             return False
-        down = np.flatnonzero(time[1:] < time[:-1]) + 1  # only where one student's slice follows another's
-        return bool(np.isin(down, starts).all())
+        if len(groups) == 1:
+            return bool((time[1:] >= time[:-1]).all())
+        first = np.zeros(len(time), dtype=bool)
+        first[starts] = True  # time may go back only where one student's slice follows another's
+        return bool((first[1:] | (time[1:] >= time[:-1])).all())
 
     def advance(self, now) -> LiveResult:
         """The stream's clock reached ``now``: close windows and sessions it passes, even without events."""
@@ -363,7 +366,7 @@ class LiveScorer:
         fields["student"] = np.repeat(np.arange(len(bufs), dtype=np.int32), sizes)
         kinds = {**self._stored, "time": "number", "student": "category"}
         cats = {name: labels.index for name, labels in self._columns.labels.items()}
-        cats["student"] = pd.RangeIndex(len(bufs))
+        cats["student"] = range_index(len(bufs))
         view = BufferLog(fields, kinds, cats, self._text, session_gap=self.session_gap,
                          duration_cap=self.duration_cap)
         fired = self._program.evaluate(view, release=False)  # a few hundred events: keep every array
