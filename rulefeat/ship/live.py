@@ -21,6 +21,7 @@ later session starts or the watermark is ``session_gap`` past its last event; an
 from __future__ import annotations
 
 import pickle
+import warnings
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
@@ -31,7 +32,7 @@ from sklearn.pipeline import FeatureUnion, Pipeline
 
 from .._aggregate import Aggregator
 from .._text import show_rows
-from ..errors import LateEventError, LiveError, ParameterError, UnitError
+from ..errors import LateEventError, LiveError, ParameterError, RulefeatWarning, UnitError
 from ..log import parse
 from ..mined.transformer import LogFeatures
 from ..rules.transformer import RuleFeatures
@@ -46,6 +47,7 @@ __all__ = ["LiveScorer", "LiveResult", "LIVE_UNITS", "CHECKPOINT_FORMAT"]
 LIVE_UNITS = ("window", "step", "problem", "session")
 CHECKPOINT_FORMAT = ("rulefeat-live-checkpoint", 1)
 _DERIVABLE = ("session", "duration")
+_EMPTY_POLICIES = ("error", "empty")  # as rulefeat.bind's empty_units
 
 
 @dataclass
@@ -109,6 +111,13 @@ class LiveScorer:
         training log (the detector records which fields its log derived).
     session_gap, duration_cap : float, optional
         As in :class:`~rulefeat.EventLog`; default: the training log's values.
+    empty_units : {"error", "empty"}, default "error"
+        A window that closes without events: as :func:`rulefeat.bind` does with units that find no
+        events, ``"error"`` refuses it with :class:`~rulefeat.errors.UnitError` (raised by the call
+        that makes the window certain to be empty, before anything of the call is taken; set
+        ``scorer.empty_units = "empty"`` and send the call again to go on); ``"empty"`` scores it as an
+        empty unit (count-like features 0, others missing, and the model's probability for those) with
+        a :class:`~rulefeat.RulefeatWarning`.
     predict_params : dict, optional
         Passed to the model's ``predict_proba`` when units close, e.g. ``{"num_threads": 1}`` for
         LightGBM, whose threads cost more than they save on the few rows of one call.
@@ -130,13 +139,13 @@ class LiveScorer:
     """
 
     def __init__(self, detector, *, windows=None, columns=None, tolerance: float = 0.0, given=None,
-                 session_gap=None, duration_cap=None, predict_params=None):
+                 session_gap=None, duration_cap=None, predict_params=None, empty_units: str = "error"):
         self._rules, self._names, self._rest = _parts(detector)
         fitted = getattr(self._rules, "log_settings_", {})
         if given is None:
             given = [f for f in _DERIVABLE if fitted.get(f"{f}_derived") is False]
         self.detector, self.tolerance, self.given = detector, tolerance, tuple(given)
-        self.columns = columns
+        self.columns, self.empty_units = columns, empty_units
         self.predict_params = dict(predict_params or {})
         self._feature_names = list(self._names or self._rules.feature_names_out_)
         self._proba = None if self._rest is None else proba_of(self._rest, self._feature_names, self.predict_params)
@@ -168,6 +177,7 @@ class LiveScorer:
     # -- construction -------------------------------------------------------------------------------
     def _check_options(self) -> None:
         parse.check_mappings(self.columns, None, "LiveScorer")
+        self._check_empty_units()
         if not isinstance(self.tolerance, (int, float)) or not self.tolerance >= 0:
             raise ParameterError(f"The 'tolerance' parameter of LiveScorer must be a number of seconds >= 0. "
                                  f"Got {self.tolerance!r} instead.")
@@ -180,6 +190,11 @@ class LiveScorer:
             if not isinstance(value, (int, float)) or not value > 0:
                 raise ParameterError(f"The {name!r} parameter of LiveScorer must be a positive number of "
                                      f"seconds. Got {value!r} instead.")
+
+    def _check_empty_units(self) -> None:
+        if self.empty_units not in _EMPTY_POLICIES:
+            raise ParameterError(f"The 'empty_units' parameter of LiveScorer must be one of "
+                                 f"{list(_EMPTY_POLICIES)!r}. Got {self.empty_units!r} instead.")
 
     def _scopes(self) -> set:
         keyed = {self.unit.field} if self.unit.name != "window" else set()
@@ -261,6 +276,9 @@ class LiveScorer:
             merged = buf.merged(part, ids[lo:hi], appended=in_order)  # in order: nothing is inserted
             self._check_reopened(student, buf, merged[0], merged[2], len(buf) if in_order else 0)
             staged.append((student, buf, merged))
+        for student, buf, merged in staged:  # nothing is taken if a window would close without events
+            mark = max(buf.latest, float(merged[1][-1]), self._clock) - self.tolerance
+            self._refuse_empty(student, buf, merged[1], mark, "feed")
         for student, buf, merged in staged:
             buf.commit(*merged)
             self._buffers[student] = buf
@@ -282,12 +300,17 @@ class LiveScorer:
     def advance(self, now) -> LiveResult:
         """The stream's clock reached ``now``: close windows and sessions it passes, even without events."""
         self._require_open("advance")
-        self._clock = max(self._clock, float(self._columns.time_values([now], "now")[0]))
+        clock = max(self._clock, float(self._columns.time_values([now], "now")[0]))
+        for student, buf in self._buffers.items():
+            self._refuse_empty(student, buf, buf.time, max(buf.latest, clock) - self.tolerance, "advance")
+        self._clock = clock
         return self._process([s for s, b in self._buffers.items() if len(b) or len(b.windows)])
 
     def close(self) -> LiveResult:
         """End of the stream: every pending event becomes final and every open unit closes."""
         self._require_open("close")
+        for student, buf in self._buffers.items():
+            self._refuse_empty(student, buf, buf.time, np.inf, "close")
         out = self._process(list(self._buffers), flush=True)
         self._closed = True
         return out
@@ -306,6 +329,25 @@ class LiveScorer:
             hint = new["action"] == self._columns.labels["action"].codes["hint"]
             self.repairs += int((hint & (new["correct"] >= 0)).sum())
             new["correct"][hint] = -1
+
+    def _refuse_empty(self, student, buf: StudentBuffer, time: np.ndarray, mark: float, method: str) -> None:
+        """Under empty_units='error', refuse windows ending by ``mark`` (the watermark the call would reach)
+        that hold none of ``time``: no event can come before the watermark, so they close empty."""
+        self._check_empty_units()
+        if self.empty_units != "error" or not len(buf.windows) or buf.windows[0, 1] > mark:
+            return
+        ending = buf.windows[buf.windows[:, 1] <= mark]
+        lo, hi = np.searchsorted(time, ending[:, 0], side="left"), np.searchsorted(time, ending[:, 1], side="left")
+        empty = ending[lo == hi]
+        if len(empty):
+            shown = "; ".join(f"window row {int(row)}: start {self._window_keys[int(row)][1]!r}, end "
+                              f"{self._window_keys[int(row)][2]!r}" for row in empty[:3, 2])
+            more = f" (and {len(empty) - 3} more)" if len(empty) > 3 else ""
+            raise UnitError(f"LiveScorer.{method}: {len(empty)} windows of student {student!r} close without "
+                            f"events ({shown}{more}); nothing of this call was taken. Units without events "
+                            "are refused, as rulefeat.bind refuses them; to score them as empty units "
+                            "(count-like features 0, others missing), set scorer.empty_units = 'empty' and "
+                            "send the call again.")
 
     def _check_late(self, student, buf: StudentBuffer, time: np.ndarray, ids: np.ndarray) -> None:
         before = np.maximum.accumulate(np.concatenate([[max(buf.latest, self._clock)], time]))[:-1]
@@ -486,11 +528,12 @@ class LiveScorer:
         table["n_events"] = sizes
         table.update(zip(self._feature_names, features.T, strict=True))
         if self._proba is not None:
-            p = np.full(len(found), np.nan)
-            full = sizes > 0  # a unit without events has no score, as bind(...) refuses it
-            if full.any():
-                p[full] = self._proba(features[full])
-            table["probability"] = p
+            table["probability"] = self._proba(features)
+        empty = np.flatnonzero(sizes == 0)
+        if len(empty):  # only with empty_units='empty': 'error' refused them before the call was taken
+            warnings.warn(f"LiveScorer: {len(empty)} of {len(found)} windows closed without events "
+                          f"({show_rows(empty)} of this call's units); they are kept, with count-like features "
+                          "0 and others NaN.", RulefeatWarning, stacklevel=4)
         return table
 
     # -- memory -----------------------------------------------------------------------------------------
@@ -529,7 +572,8 @@ class LiveScorer:
         you wrote yourself.
         """
         state = {"format": CHECKPOINT_FORMAT, "detector": self.detector,
-                 "options": {"columns": self.columns, "tolerance": self.tolerance, "given": self.given,
+                 "options": {"columns": self.columns, "empty_units": self.empty_units,
+                             "tolerance": self.tolerance, "given": self.given,
                              "session_gap": self.session_gap,
                              "duration_cap": self.duration_cap, "predict_params": self.predict_params},
                  "columns": self._columns.labels, "buffers": self._buffers, "window_keys": self._window_keys,

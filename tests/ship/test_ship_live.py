@@ -160,8 +160,11 @@ def check_identity(detector, events: pd.DataFrame, sizes, tolerance: float, keys
         warnings.simplefilter("ignore")
         log = EventLog(events, session_gap=SESSION_GAP)
     rules = detector.named_steps["rules"]
-    scorer = LiveScorer(detector, tolerance=tolerance, **({"windows": units} if "start" in keys else {}))
-    outs = replay(scorer, events, sizes)
+    windows = {"windows": units, "empty_units": "empty"} if "start" in keys else {}
+    scorer = LiveScorer(detector, tolerance=tolerance, **windows)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", rulefeat.RulefeatWarning)  # windows without events, as in batch
+        outs = replay(scorer, events, sizes)
     batch = rules.program_.evaluate(log)
     live = live_firings(outs, len(events))
     for name in RULES.names:
@@ -174,12 +177,10 @@ def check_identity(detector, events: pd.DataFrame, sizes, tolerance: float, keys
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         features = rulefeat.bind(rules, log, empty_units="empty").transform(units)
-        full = (merged["n_events"] > 0).to_numpy()
-        p = rulefeat.bind(detector, log).predict_proba(units[full])[:, 1]
+        p = rulefeat.bind(detector, log, empty_units="empty").predict_proba(units)[:, 1]
     for name in features.columns:
         assert same(merged[name], features[name]), name
-    assert same(merged["probability"].to_numpy()[full], p)
-    assert np.isnan(merged["probability"].to_numpy()[~full]).all()
+    assert same(merged["probability"], p)  # windows without events too: scored as batch scores them
 
 
 @settings(max_examples=EXAMPLES, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -408,3 +409,27 @@ def test_events_named_otherwise_are_read_through_a_columns_mapping():
         LiveScorer(STEP_DETECTOR, columns=["learner"])
     with pytest.raises(LiveError, match=r"no 'time' field \(named 'ts' by the 'columns' mapping\)"):
         LiveScorer(STEP_DETECTOR, columns=names).feed({"learner": "a", "time": 1.0, "action": "hint"})
+
+
+def test_a_window_without_events_is_refused_as_in_batch_or_scored_empty():
+    units = pd.DataFrame({"student": ["a", "a"], "start": [0.0, 10.0], "end": [5.0, 20.0]})
+    scorer = LiveScorer(DEMO_WINDOWS, windows=units)
+    scorer.feed({"student": "a", "time": 1.0, "action": "attempt", "correct": 1, "step": "s1"})
+    with pytest.raises(rulefeat.UnitError, match=r"LiveScorer.feed: 1 windows of student 'a' close without "
+                                                 r"events \(window row 1: start 10.0, end 20.0\).*empty_units"):
+        scorer.feed({"student": "a", "time": 25.0, "action": "hint", "step": "s1"})
+    assert scorer.buffer_sizes()["a"] == 1  # nothing of the refused call was taken
+    with pytest.raises(rulefeat.UnitError, match=r"LiveScorer.close: 1 windows"):
+        scorer.close()
+    scorer.empty_units = "empty"
+    with pytest.warns(rulefeat.RulefeatWarning, match=r"1 of 2 windows closed without events"):
+        out = scorer.feed({"student": "a", "time": 25.0, "action": "hint", "step": "s1"})
+    events = pd.DataFrame({"student": "a", "time": [1.0, 25.0], "action": ["attempt", "hint"],
+                           "correct": pd.array([True, pd.NA], dtype="boolean"), "step": "s1"})
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        batch = rulefeat.bind(DEMO_WINDOWS, EventLog(events, session_gap=SESSION_GAP),
+                              empty_units="empty").predict_proba(units)[:, 1]
+    assert out.units["n_events"].tolist() == [1, 0] and same(out.units["probability"], batch)
+    with pytest.raises(rulefeat.errors.ParameterError, match=r"'empty_units' parameter of LiveScorer"):
+        LiveScorer(DEMO_WINDOWS, empty_units="skip")
