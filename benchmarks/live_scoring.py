@@ -3,9 +3,10 @@
 The five demo rules (rulefeat/data/demo_rules.toml), mined features off (``make_detector(..., mined=False)``), on
 a simulated day of the Zorbleth platform replayed in time order across students.  Events go to
 ``LiveScorer.feed`` one at a time (as dicts) and in calls of 10, 100 and 1000 (DataFrame slices, made before the
-clock starts); a call's duration (``feed`` and reading the probabilities of the units it closed; in the
-second pair of columns also building its ``units`` DataFrame) is the latency of every event in it.  The model predicts with one thread
-(``predict_params={"num_threads": 1}``): LightGBM's threads cost more than they save on a call's few windows.  The baseline is the batch path on the same
+clock starts).  A call's duration is the latency of every event in it; it covers ``feed`` and reading the
+probabilities of the units the call closed (``unit_columns``), and in the second pair of columns also building
+the call's ``units`` DataFrame.  The model predicts with one thread (``predict_params={"num_threads": 1}``):
+LightGBM's threads cost more than they save on a call's few windows.  The baseline is the batch path on the same
 events: building the EventLog, evaluating the rules and scoring every window, in one go.  It checks on the way
 that the live probabilities equal the batch ones.  Figures depend on the machine's load; run it on a quiet one.
 

@@ -389,10 +389,15 @@ def test_a_rules_only_detector_of_make_detector_scores_live_as_in_batch():
         units = _step_units(log)
         batch = rulefeat.bind(detector, log).predict_proba(units)[:, 1]
     assert [name for name, _ in detector.named_steps["features"].transformer_list] == ["rules"]
-    table = live_units(replay(LiveScorer(detector, predict_params={"num_threads": 1}), events, [3]))
+    fast = LiveScorer(detector, predict_params={"num_threads": 1})
+    assert fast._proba.__name__ == "through_booster"  # LightGBM asked through its booster
+    table = live_units(replay(fast, events, [3]))
     merged = units.assign(batch=batch).merge(table, on=["student", "step"])
     assert len(merged) == len(units) and same(merged["probability"], merged["batch"])
     assert "rules__skimmed_hint__count" in table.columns
+    wrapped = LiveScorer(detector, predict_params={"nthread": 1})  # a parameter the fast path does not read
+    assert wrapped._proba.__name__ == "through_pipeline"
+    pd.testing.assert_frame_equal(live_units(replay(wrapped, events, [3])), table)
 
 
 def test_events_named_otherwise_are_read_through_a_columns_mapping():
