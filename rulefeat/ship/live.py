@@ -120,7 +120,9 @@ class LiveScorer:
         a :class:`~rulefeat.RulefeatWarning`.
     predict_params : dict, optional
         Passed to the model's ``predict_proba`` when units close, e.g. ``{"num_threads": 1}`` for
-        LightGBM, whose threads cost more than they save on the few rows of one call.
+        LightGBM, whose threads cost more than they save on the few rows of one call (a binary LightGBM
+        classifier alone is asked through its booster, which takes that thread count; see
+        :mod:`rulefeat.ship.predict`).
 
     Examples
     --------
