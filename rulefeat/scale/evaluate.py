@@ -139,7 +139,7 @@ def _student_codes(dlog: DistributedLog, labels) -> np.ndarray:
 
 def log_summary(dlog: DistributedLog, client) -> dict:
     """:meth:`rulefeat.EventLog.summary` of all the events, added up over the partitions."""
-    parts = [p for p in client.gather([client.submit(_summary, f) for f in dlog.partition_logs(client)]) if p]
+    parts = [p for p in dlog.per_partition(client, _summary) if p]
     actions: dict = {}
     for p in parts:
         for name, n in p["actions"].items():
@@ -158,7 +158,7 @@ def _summary(log):
 def _populations(dlog: DistributedLog, client, codes: np.ndarray, notes: list):
     """Each unit's population: that of its student's first event (as on one machine)."""
     names = [str(c) for c in shared_labels(dlog, client).get("population", [])]
-    found = client.gather([client.submit(_first_population, f) for f in dlog.partition_logs(client)])
+    found = dlog.per_partition(client, _first_population)
     student_pop = np.full(len(dlog.students), -1, dtype=np.int64)
     mixed = 0
     lookup = pd.Index(names)
