@@ -9,7 +9,14 @@ from _scale_data import simulated
 
 from rulefeat import EventLog
 from rulefeat.errors import LogSchemaError, ParameterError
-from rulefeat.scale import DistributedLog, PartitionWriter, student_partition, write_partitioned
+from rulefeat.scale import (
+    PARTITION_EVENTS,
+    DistributedLog,
+    PartitionWriter,
+    partitions_for,
+    student_partition,
+    write_partitioned,
+)
 
 pytest.importorskip("pyarrow")
 pytest.importorskip("fsspec")
@@ -113,6 +120,8 @@ def test_refusals_name_the_problem(tmp_path):
     dlog = DistributedLog(tmp_path / "b")
     with pytest.raises(ParameterError, match="partition 2 does not exist"):
         dlog.load(2)
+    with pytest.raises(ParameterError, match=r"DistributedLog.submit: partition 2 does not exist; there are 2"):
+        dlog.submit(None, 2, len)  # refused before any cluster is asked
 
 
 def test_a_renamed_student_column_is_read_through_log_options(tmp_path):
@@ -121,3 +130,15 @@ def test_a_renamed_student_column_is_read_through_log_options(tmp_path):
     dlog = write_partitioned(raw, tmp_path / "ds", 2, log_options={"columns": {"student": "learner"}})
     assert sorted(dlog.students) == sorted(events["student"].unique())
     assert sum(len(dlog.load(k) or []) for k in range(2)) == len(events)
+
+
+def test_the_default_partition_count_keeps_partitions_near_the_target_size(tmp_path):
+    assert PARTITION_EVENTS == 500_000
+    assert [partitions_for(n) for n in (0, 1, 500_000, 500_001, 50_000_000)] == [1, 1, 1, 2, 100]
+    assert partitions_for(2_500, events_per_partition=1_000) == 3
+    events, _ = simulated(12)
+    assert write_partitioned(events, tmp_path / "ds").n_partitions == 1  # a few thousand events: one partition
+    with pytest.raises(ParameterError, match="'events_per_partition' parameter of partitions_for"):
+        partitions_for(10, events_per_partition=0)
+    with pytest.raises(ParameterError, match="'n_events' parameter of partitions_for"):
+        partitions_for(-1)
