@@ -9,8 +9,10 @@ Layout of a dataset folder (a local path or any fsspec URL)::
 
 A student's partition is a stable hash of the student label's text (:func:`student_partition`), the same
 in every process and on every machine, so all of a student's events land in one partition and units can
-be sent to the partition holding their student.  Each chunk written is sorted once by (student, time);
-:meth:`DistributedLog.load` turns a partition into an ordinary :class:`~rulefeat.EventLog` wherever it
+be sent to the partition holding their student.  The writer holds up to ``buffer_events`` events and
+writes a partition's buffered events as one chunk (whole students, each sorted by time) when the buffer
+is full (largest partition first) or on closing, so a partition has few, large chunk files however many
+small pieces of it were written.  :meth:`DistributedLog.load` turns a partition into an ordinary :class:`~rulefeat.EventLog` wherever it
 runs (contract 9: the same engine on every worker).
 
 Workers never keep a partition's log between tasks: :meth:`DistributedLog.submit` runs a function on a
@@ -93,19 +95,28 @@ class PartitionWriter:
         ``session_gap``, ...). They are stored in the manifest.
     storage_options : dict, optional
         Passed to fsspec for URLs.
+    buffer_events : int, default 4_000_000
+        Events held (as Arrow tables) before the largest partitions' buffers are written out. More means
+        fewer chunk files per partition, which later reads faster (one file per 5k-event piece made an
+        18-chunk partition read 3.4x slower at 91 chunks); the writer's memory is about 40 bytes an event
+        of the demo data's columns.
     """
 
     def __init__(self, path, n_partitions: int, *, log_options: dict | None = None,
-                 storage_options: dict | None = None):
-        if isinstance(n_partitions, bool) or not isinstance(n_partitions, (int, np.integer)) or n_partitions < 1:
-            raise ParameterError(f"The 'n_partitions' parameter of PartitionWriter must be a positive integer. "
-                                 f"Got {n_partitions!r} instead.")
+                 storage_options: dict | None = None, buffer_events: int = 4_000_000):
+        for name, value in (("n_partitions", n_partitions), ("buffer_events", buffer_events)):
+            if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
+                raise ParameterError(f"The {name!r} parameter of PartitionWriter must be a positive integer. "
+                                     f"Got {value!r} instead.")
         self.fs, self.root = _filesystem(path, storage_options)
         if self.fs.exists(self.root) and self.fs.ls(self.root):
             raise ParameterError(f"PartitionWriter: {str(path)!r} is not empty; give a new folder so that "
                                  "no old partition is mixed in.")
         self.fs.makedirs(self.root, exist_ok=True)
-        self.n_partitions = int(n_partitions)
+        self.n_partitions, self.buffer_events = int(n_partitions), int(buffer_events)
+        self._buffer: dict[int, list] = {}
+        self._buffered = np.zeros(self.n_partitions, dtype=np.int64)
+        self._files = np.zeros(self.n_partitions, dtype=np.int64)
         self.log_options = dict(log_options or {})
         self._students: list[pd.DataFrame] = []
         self._seen: set[str] = set()
@@ -142,10 +153,15 @@ class PartitionWriter:
         ordered = frame.assign(_part=part).sort_values(["_part", *keys], kind="stable")
         bounds = np.searchsorted(ordered["_part"].to_numpy(), np.arange(self.n_partitions + 1))
         body = ordered.drop(columns="_part")
+        pa = require("pyarrow")
         for k in range(self.n_partitions):
             if bounds[k + 1] > bounds[k]:
-                self._write_chunk(body.iloc[bounds[k]:bounds[k + 1]], k)
+                self._buffer.setdefault(k, []).append(
+                    pa.Table.from_pandas(body.iloc[bounds[k]:bounds[k + 1]], preserve_index=False))
+                self._buffered[k] += bounds[k + 1] - bounds[k]
         self._chunks += 1
+        while self._buffered.sum() > self.buffer_events:
+            self._flush(int(np.argmax(self._buffered)))
 
     def _frame(self, events) -> pd.DataFrame:
         if isinstance(events, EventLog):
@@ -162,16 +178,26 @@ class PartitionWriter:
             raise LogSchemaError(f"PartitionWriter.write: this chunk has columns {list(columns)!r}, the first "
                                  f"had {list(self._columns)!r}; every chunk needs the same columns.")
 
-    def _write_chunk(self, part: pd.DataFrame, k: int) -> None:
-        pq = require("pyarrow.parquet")
-        pa = require("pyarrow")
+    def _flush(self, k: int) -> None:
+        """Write partition ``k``'s buffered pieces (whole students, in writing order) as its next chunk."""
+        pq, pa = require("pyarrow.parquet"), require("pyarrow")
+        pieces = self._buffer.pop(k)
         folder = posixpath.join(self.root, f"part-{k:05d}")
         self.fs.makedirs(folder, exist_ok=True)
-        with self.fs.open(posixpath.join(folder, f"chunk-{self._chunks:06d}.parquet"), "wb") as f:
-            pq.write_table(pa.Table.from_pandas(part, preserve_index=False), f)
+        try:
+            table = pa.concat_tables(pieces, promote_options="permissive") if len(pieces) > 1 else pieces[0]
+        except (pa.ArrowInvalid, pa.ArrowTypeError) as exc:
+            raise LogSchemaError(f"PartitionWriter.write: the chunks written have columns of types that do not "
+                                 f"combine ({exc}); give every chunk the same column types.") from exc
+        with self.fs.open(posixpath.join(folder, f"chunk-{self._files[k]:06d}.parquet"), "wb") as f:
+            pq.write_table(table, f)
+        self._files[k] += 1
+        self._buffered[k] = 0
 
     def close(self) -> None:
-        """Write the student table and the manifest."""
+        """Write what is still buffered, the student table and the manifest."""
+        for k in sorted(self._buffer):
+            self._flush(k)
         pq, pa = require("pyarrow.parquet"), require("pyarrow")
         students = pd.concat(self._students, ignore_index=True) if self._students else \
             pd.DataFrame({"student": pd.Series([], dtype=object), "events": [], "partition": []})

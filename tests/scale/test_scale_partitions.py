@@ -66,14 +66,19 @@ def test_the_hash_is_stable_and_spreads_students():
     assert counts.min() > 850  # about 1000 each (common practice, no source: a loose uniformity check)
 
 
-def test_streamed_chunks_give_the_same_partitions_as_one_write(tmp_path):
+@pytest.mark.parametrize("buffer_events", [1, 4_000_000])
+def test_streamed_chunks_give_the_same_partitions_as_one_write(tmp_path, buffer_events):
     events, _ = simulated()
     students = sorted(events["student"].unique())
-    with PartitionWriter(tmp_path / "streamed", 3) as out:
-        for chunk in np.array_split(np.array(students, dtype=object), 4):
+    chunks = np.array_split(np.array(students, dtype=object), 4)
+    with PartitionWriter(tmp_path / "streamed", 3, buffer_events=buffer_events) as out:
+        for chunk in chunks:
             out.write(events[events["student"].isin(set(chunk))])
     streamed, whole = DistributedLog(tmp_path / "streamed"), write_partitioned(events, tmp_path / "whole", 3)
-    assert sum(len(streamed.files(k)) for k in range(3)) > 3  # a chunk file per partition and chunk
+    # A full buffer writes a chunk file per partition and write; a large one a file per partition at closing.
+    per_write = sum(len(set(student_partition(chunk, 3))) for chunk in chunks)
+    assert sum(len(streamed.files(k)) for k in range(3)) == (per_write if buffer_events == 1 else 3)
+    assert per_write > 3
     for k in range(3):
         a = streamed.read(k).reset_index(drop=True)
         b = whole.read(k).reset_index(drop=True)
@@ -107,6 +112,8 @@ def test_refusals_name_the_problem(tmp_path):
     events, _ = simulated(12)
     with pytest.raises(ParameterError, match="'n_partitions' parameter of PartitionWriter"):
         PartitionWriter(tmp_path / "a", 0)
+    with pytest.raises(ParameterError, match="'buffer_events' parameter of PartitionWriter"):
+        PartitionWriter(tmp_path / "a", 2, buffer_events=0)
     write_partitioned(events, tmp_path / "b", 2)
     with pytest.raises(ParameterError, match="is not empty"):
         write_partitioned(events, tmp_path / "b", 2)
