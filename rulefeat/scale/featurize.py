@@ -25,7 +25,7 @@ from .extra import default_client, require
 from .fit import units_by_partition
 from .partitioned import DistributedLog
 
-__all__ = ["transform"]
+__all__ = ["transform", "transform_each"]
 
 
 def transform(fitted, dlog: DistributedLog, X: pd.DataFrame, *, client=None, output: str = "pandas",
@@ -72,6 +72,23 @@ def transform(fitted, dlog: DistributedLog, X: pd.DataFrame, *, client=None, out
     parts = client.gather(futures)
     order = np.argsort(np.concatenate(list(rows.values())), kind="stable")
     return pd.concat(parts).iloc[order] if len(parts) > 1 else parts[0].iloc[order]
+
+
+def transform_each(fitted: list, dlog: DistributedLog, X: pd.DataFrame, *, client=None) -> list[pd.DataFrame]:
+    """``[transform(f, dlog, X) for f in fitted]`` (pandas output) in one pass: each partition's log is built
+    once for all the transformers (the cluster evaluation featurizes each fold this way)."""
+    client = default_client(client)
+    X = _frame.as_pandas(X)
+    student = fitted[0].unit_.student
+    rows = units_by_partition(dlog, X[student])
+    parts = client.gather([dlog.submit(client, k, _transform_parts, fitted, X.iloc[r]) for k, r in rows.items()])
+    order = np.argsort(np.concatenate(list(rows.values())), kind="stable")
+    return [pd.concat([p[j] for p in parts]).iloc[order] if len(parts) > 1 else parts[0][j].iloc[order]
+            for j in range(len(fitted))]
+
+
+def _transform_parts(log, fitted: list, X: pd.DataFrame) -> list[pd.DataFrame]:
+    return [_transform_part(log, f, X) for f in fitted]
 
 
 def _transform_part(log, fitted, X: pd.DataFrame) -> pd.DataFrame:
