@@ -249,10 +249,13 @@ def _recode(codes: np.ndarray, local: pd.Index | None, shared: pd.Index | None) 
 
 def _norm_values(log, students, program, labels, all_students):
     sub = log.for_students(students)
+    # Each student's number in the whole dataset (int32 halves what travels to the reducer); looked up once
+    # per student, not per value.
+    numbers = _frame.codes_for(sub.students, all_students).astype(np.int32)
     out = []
     for piece in program.norm_values(sub):
         shared = labels[piece["per"]]
-        order = _frame.codes_for(sub.students[piece["student"]], all_students)
+        order = numbers[piece["student"]]
         out.append((piece["per"], piece["values"], _recode(piece["keys"], piece["labels"], shared), order))
     return out
 
@@ -260,12 +263,13 @@ def _norm_values(log, students, program, labels, all_students):
 def _fit_norms(program, labels, *pieces):
     gathered = []
     for j, (per, *_) in enumerate(pieces[0]):
-        values = np.concatenate([p[j][1] for p in pieces])
-        keys = np.concatenate([p[j][2] for p in pieces])
         # One partition's values are in its log's order (student, then time): a stable sort on the
         # student puts them in the order of one log of all the events, so sums add up the same way.
+        # Each concatenation is dropped as soon as it is put in order: the reducer's memory peaks lower.
         order = np.argsort(np.concatenate([p[j][3] for p in pieces]), kind="stable")
-        gathered.append({"values": values[order], "keys": keys[order], "labels": labels[per]})
+        gathered.append({"values": np.concatenate([p[j][1] for p in pieces])[order],
+                         "keys": np.concatenate([p[j][2] for p in pieces])[order], "labels": labels[per]})
+        del order
     return program.fit_values(gathered)
 
 
