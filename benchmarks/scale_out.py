@@ -7,7 +7,10 @@ memory_limit="6GB")``, the rule and mined transformers are fitted on 80 % of the
 (rulefeat.scale.incremental_value, cv=2).  Targets (2 cores): events/s per worker; 10M -> 50M events
 costs <= 5.5x the featurizing time; no worker above its memory limit.  The baseline of the ratios is
 the smallest size measured in the same run; with ``--single`` the smallest size is also featurized by
-one process holding the whole log, for a cluster-vs-one-process ratio.
+one process holding the whole log, for a cluster-vs-one-process ratio.  Before any timing each worker
+featurizes a tiny log once, so the first size is not charged the workers' one-time JIT compilation.
+The client's own peak resident memory is printed too: the simulation streams, so it must stay far below
+the size of the log.
 
     python benchmarks/scale_out.py --events 1M            # quick
     python benchmarks/scale_out.py --events 1M,10M        # the 10x step
@@ -17,6 +20,7 @@ one process holding the whole log, for a cluster-vs-one-process ratio.
 from __future__ import annotations
 
 import argparse
+import shutil
 import tempfile
 import threading
 import time
@@ -60,7 +64,7 @@ def simulate_into(path: Path, n_events: int, n_partitions: int, seed: int) -> tu
 
 
 class PeakMemory:
-    """Poll every worker's resident memory once a second; keep each worker's peak."""
+    """Poll every worker's resident memory (if ``client``) and this process's twice a second; keep the peaks."""
 
     def __init__(self, client):
         self.client, self.peak, self._stop = client, {}, threading.Event()
@@ -69,11 +73,12 @@ class PeakMemory:
     def _run(self):
         while not self._stop.is_set():
             try:
-                for worker, rss in self.client.run(_rss).items():
+                found = {**(self.client.run(_rss) if self.client is not None else {}), "client": _rss()}
+                for worker, rss in found.items():
                     self.peak[worker] = max(self.peak.get(worker, 0), rss)
             except Exception:  # a worker restarting is reported by the run itself
                 pass
-            self._stop.wait(1.0)
+            self._stop.wait(0.5)
 
     def __enter__(self):
         self._thread.start()
@@ -93,8 +98,6 @@ def featurize(dlog, windows, client) -> dict:
     units = windows[["student", "start", "end"]]
     students = np.sort(units["student"].unique())
     train = units[units["student"].isin(set(students[: int(0.8 * len(students))]))]
-    t0 = time.perf_counter()
-    client.gather(dlog.partition_logs(client))  # build every partition's EventLog on its worker
     t1 = time.perf_counter()
     rules = scale.fit(RuleFeatures(None, demo_rules_path()), dlog, train, client=client)
     mined = scale.fit(LogFeatures(None, random_state=0), dlog, train, client=client)
@@ -102,8 +105,16 @@ def featurize(dlog, windows, client) -> dict:
     table_r = scale.transform(rules, dlog, units, client=client)
     table_m = scale.transform(mined, dlog, units, client=client)
     t3 = time.perf_counter()
-    return {"load": t1 - t0, "fit": t2 - t1, "transform": t3 - t2, "total": t3 - t0,
+    return {"fit": t2 - t1, "transform": t3 - t2, "total": t3 - t1,
             "features": table_r.shape[1] + table_m.shape[1], "units": len(units)}
+
+
+def warm_up() -> None:
+    """Featurize a tiny log in this process: compiles the JIT kernels (run on every worker before timing)."""
+    sim = tutor_logs(n_students=6, seed=0)
+    log, units = EventLog(sim.events), sim.windows[["student", "start", "end"]]
+    RuleFeatures(log, demo_rules_path()).fit(units).transform(units)
+    LogFeatures(log, random_state=0, bkt_options={"n_restarts": 1, "max_iter": 5}).fit(units).transform(units)
 
 
 def evaluate(dlog, windows, client) -> float:
@@ -131,7 +142,8 @@ def single_process(dlog, windows) -> float:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--events", default="1M", help="comma-separated sizes, e.g. 1M,10M,50M")
-    parser.add_argument("--partitions", type=int, default=0, help="partitions (default: about 500k events each)")
+    parser.add_argument("--partitions", type=int, default=0,
+                        help="partitions (default: scale.partitions_for, about 500k events each, at least 4)")
     parser.add_argument("--memory-limit", default="6GB")
     parser.add_argument("--no-evaluate", action="store_true", help="featurize only")
     parser.add_argument("--single", action="store_true", help="also featurize the smallest size in one process")
@@ -144,23 +156,30 @@ def main() -> None:
             n_workers=2, threads_per_worker=1, memory_limit=args.memory_limit, processes=True,
             dashboard_address=None) as cluster, Client(cluster) as client:
         n_workers = len(client.scheduler_info()["workers"])
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            client.run(warm_up)
         for n in sizes:
-            parts = args.partitions or max(4, round(n / 500_000))
+            parts = args.partitions or max(4, scale.partitions_for(n))
             t0 = time.perf_counter()
-            dlog, windows = simulate_into(Path(tmp) / f"events-{n}", n, parts, seed=1)
+            with PeakMemory(None) as own:
+                dlog, windows = simulate_into(Path(tmp) / f"events-{n}", n, parts, seed=1)
             simulate_s = time.perf_counter() - t0
             with PeakMemory(client) as memory:
                 timing = featurize(dlog, windows, client)
                 eval_s = float("nan") if args.no_evaluate else evaluate(dlog, windows, client)
-            peak = max(memory.peak.values()) if memory.peak else float("nan")
+            peak = max((v for k, v in memory.peak.items() if k != "client"), default=float("nan"))
             single_s = single_process(dlog, windows) if args.single and n == min(sizes) else float("nan")
             rows.append({"events": dlog.n_events, "partitions": parts, "units": timing["units"],
                          "simulate_s": simulate_s, **{f"{k}_s": v for k, v in timing.items() if k not in ("units", "features")},
                          "events_per_s_per_worker": dlog.n_events / timing["total"] / n_workers,
-                         "evaluate_s": eval_s, "peak_worker_GB": peak / 1e9, "single_process_s": single_s})
+                         "evaluate_s": eval_s, "peak_worker_GB": peak / 1e9,
+                         "client_GB": max(own.peak["client"], memory.peak.get("client", 0)) / 1e9,
+                         "single_process_s": single_s})
             print(pd.DataFrame([rows[-1]]).to_string(index=False, float_format=lambda v: f"{v:,.2f}"), flush=True)
-            dlog.release()
+            del dlog
             client.run(_collect)
+            shutil.rmtree(Path(tmp) / f"events-{n}")
     table = pd.DataFrame(rows)
     print("\n" + table.to_string(index=False, float_format=lambda v: f"{v:,.2f}"))
     base = table.iloc[0]
@@ -170,7 +189,8 @@ def main() -> None:
     if not np.isnan(base["single_process_s"]):
         print(f"one process / cluster at {base['events'] / 1e6:.1f}M events: "
               f"{base['single_process_s'] / base['total_s']:.2f}x")
-    print(f"peak worker memory {table['peak_worker_GB'].max():.2f} GB of {args.memory_limit} per worker")
+    print(f"peak worker memory {table['peak_worker_GB'].max():.2f} GB of {args.memory_limit} per worker; "
+          f"client (simulating, gathering tables) {table['client_GB'].max():.2f} GB")
 
 
 def _collect() -> None:

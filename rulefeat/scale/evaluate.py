@@ -25,8 +25,8 @@ from ..evaluate.folds import column_names, dense, fold_features
 from ..evaluate.inputs import WHERE, prepare_units
 from ..evaluate.value.engine import evaluate_inputs
 from ..report.value import IncrementalValueReport
-from .extra import default_client
-from .featurize import transform
+from .extra import default_client, require
+from .featurize import transform_each
 from .fit import fit, shared_labels
 from .partitioned import DistributedLog
 
@@ -95,29 +95,45 @@ class ClusterFolds:
             train, test = task.fold.train, task.fold.test
             key = fold_key(train, test)
             if key not in tables:
-                tables[key] = self._fold(train, test, y[train])
+                # Kept on the cluster, not in the fold loop's job: each fold task fetches its own tables.
+                tables[key] = self.client.scatter([self._fold(train, test, y[train])], hash=False)[0]
         return FoldTables(tables)
 
     def _fold(self, train, test, y_train):
         Xtr = self.X.iloc[train]
         both = pd.concat([Xtr, self.X.iloc[test]])
+        ests = [fit(prototype, self.dlog, Xtr, y_train, client=self.client) for prototype in (self.mined, self.rules)]
         blocks = []
-        for prefix, prototype in (("mined", self.mined), ("rules", self.rules)):
-            est = fit(prototype, self.dlog, Xtr, y_train, client=self.client)
-            Z = transform(est, self.dlog, both, client=self.client)
+        for prefix, est, Z in zip(("mined", "rules"), ests, transform_each(ests, self.dlog, both, client=self.client),
+                                  strict=True):
             values = dense(Z)
             blocks.append((column_names(est, Z, prefix), values[:len(train)], values[len(train):]))
         return fold_features(blocks[0], blocks[1], self.rule_names)
 
 
 class FoldTables:
-    """The fold loop's feature source once every fold's tables are computed: a lookup by fold."""
+    """The fold loop's feature source once every fold's tables are computed: a lookup by fold.
+
+    The tables are futures of data scattered to the cluster; this object travels to the fold tasks with
+    the keys only (a future does not survive joblib's pickling) and each task fetches its fold's tables.
+    The client's copy holds the futures, which keeps the data alive while the fold loop runs.
+    """
 
     def __init__(self, tables: dict):
         self.tables = tables
 
+    def __getstate__(self) -> dict:
+        return {"keys": {fold: future.key for fold, future in self.tables.items()}}
+
+    def __setstate__(self, state: dict) -> None:
+        self.keys = state["keys"]
+
     def features(self, train: np.ndarray, test: np.ndarray, y_train: np.ndarray):
-        return self.tables[fold_key(train, test)]
+        fold = fold_key(train, test)
+        if hasattr(self, "tables"):
+            return self.tables[fold].result()
+        distributed = require("distributed")
+        return distributed.Future(self.keys[fold], client=distributed.get_client()).result()
 
 
 def fold_key(train: np.ndarray, test: np.ndarray) -> str:
@@ -139,7 +155,7 @@ def _student_codes(dlog: DistributedLog, labels) -> np.ndarray:
 
 def log_summary(dlog: DistributedLog, client) -> dict:
     """:meth:`rulefeat.EventLog.summary` of all the events, added up over the partitions."""
-    parts = [p for p in client.gather([client.submit(_summary, f) for f in dlog.partition_logs(client)]) if p]
+    parts = [p for p in dlog.per_partition(client, _summary) if p]
     actions: dict = {}
     for p in parts:
         for name, n in p["actions"].items():
@@ -158,7 +174,7 @@ def _summary(log):
 def _populations(dlog: DistributedLog, client, codes: np.ndarray, notes: list):
     """Each unit's population: that of its student's first event (as on one machine)."""
     names = [str(c) for c in shared_labels(dlog, client).get("population", [])]
-    found = client.gather([client.submit(_first_population, f) for f in dlog.partition_logs(client)])
+    found = dlog.per_partition(client, _first_population)
     student_pop = np.full(len(dlog.students), -1, dtype=np.int64)
     mixed = 0
     lookup = pd.Index(names)

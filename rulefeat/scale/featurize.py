@@ -2,7 +2,8 @@
 
 A unit's features depend only on its own events and the fitted state (contract 3), and all of a student's
 events sit in one partition, so each partition's task scores the units of its students with the same
-engine as one machine (the fitted transformer bound to that partition's EventLog, contract 9).  With
+engine as one machine (the fitted transformer bound to that partition's EventLog, contract 9); the log is
+built in the task and freed with it.  With
 numeric times the result equals the single-machine one to the bit; with datetime times each partition's
 log counts seconds from its own earliest event, so time differences agree to float rounding
 (docs/ship.md, "Time").
@@ -24,7 +25,7 @@ from .extra import default_client, require
 from .fit import units_by_partition
 from .partitioned import DistributedLog
 
-__all__ = ["transform"]
+__all__ = ["transform", "transform_each"]
 
 
 def transform(fitted, dlog: DistributedLog, X: pd.DataFrame, *, client=None, output: str = "pandas",
@@ -57,14 +58,12 @@ def transform(fitted, dlog: DistributedLog, X: pd.DataFrame, *, client=None, out
     student = fitted.unit_.student
     if student not in X.columns:
         raise UnitError(f"rulefeat.scale.transform: X has no {student!r} column; its units need their student.")
-    logs = dlog.partition_logs(client)
     rows = units_by_partition(dlog, X[student])
-    args = {k: (logs[k], fitted, X.iloc[r]) for k, r in rows.items()}
     if output == "parquet":
-        futures = [client.submit(_write, *a, path, k, storage_options, pure=False) for k, a in args.items()]
+        futures = [dlog.submit(client, k, _write, fitted, X.iloc[r], path, k, storage_options) for k, r in rows.items()]
         client.gather(futures)
         return path
-    futures = [client.submit(_transform_part, *a, pure=False) for a in args.values()]
+    futures = [dlog.submit(client, k, _transform_part, fitted, X.iloc[r]) for k, r in rows.items()]
     if output == "dask":
         dd = require("dask.dataframe")
         meta = pd.DataFrame({name: pd.Series([], dtype=np.float64) for name in fitted.feature_names_out_},
@@ -73,6 +72,23 @@ def transform(fitted, dlog: DistributedLog, X: pd.DataFrame, *, client=None, out
     parts = client.gather(futures)
     order = np.argsort(np.concatenate(list(rows.values())), kind="stable")
     return pd.concat(parts).iloc[order] if len(parts) > 1 else parts[0].iloc[order]
+
+
+def transform_each(fitted: list, dlog: DistributedLog, X: pd.DataFrame, *, client=None) -> list[pd.DataFrame]:
+    """``[transform(f, dlog, X) for f in fitted]`` (pandas output) in one pass: each partition's log is built
+    once for all the transformers (the cluster evaluation featurizes each fold this way)."""
+    client = default_client(client)
+    X = _frame.as_pandas(X)
+    student = fitted[0].unit_.student
+    rows = units_by_partition(dlog, X[student])
+    parts = client.gather([dlog.submit(client, k, _transform_parts, fitted, X.iloc[r]) for k, r in rows.items()])
+    order = np.argsort(np.concatenate(list(rows.values())), kind="stable")
+    return [pd.concat([p[j] for p in parts]).iloc[order] if len(parts) > 1 else parts[0][j].iloc[order]
+            for j in range(len(fitted))]
+
+
+def _transform_parts(log, fitted: list, X: pd.DataFrame) -> list[pd.DataFrame]:
+    return [_transform_part(log, f, X) for f in fitted]
 
 
 def _transform_part(log, fitted, X: pd.DataFrame) -> pd.DataFrame:

@@ -1,20 +1,23 @@
 """Fit rulefeat's transformers on a :class:`DistributedLog`, to the state one machine would learn.
 
-Two passes over the training students' partitions, never moving events to the client:
+Passes over the training students' partitions, never moving events to the client; each task builds its
+partition's log, computes what the pass needs from it and keeps only that (:meth:`DistributedLog.submit`):
 
 1. *Gather.* Each partition holding training students computes, on its worker, what the fitted state
-   learns from: the values of every fitted rule norm (``typical`` / ``zscore``) with their keys, the
-   timing family's durations and gaps, the judged attempts of the BKT model.  Category codes are put
+   learns from: the values of every fitted rule norm (``typical`` / ``zscore``) with their keys, or in one
+   task for the mined families the timing family's durations and gaps and the judged attempts of the BKT
+   model (kept on the worker as arrays, from which each partition's attempt block is laid out).  Category codes are put
    on labels shared by all partitions (the sorted union, which is what one log of every event uses).
 2. *Reduce.* Norm and timing values go to one worker task that fits them with the same code as one
    machine: quantiles and medians are exact order statistics, so they are equal to the bit; z-score
    moments are summed in the combined log's order (values are put back in student order), so they are
-   equal to the bit too.  BKT runs EM with the E-step on every partition and the sums and M-step on the
-   client (:meth:`rulefeat.mastery.BKT.fit_expected`); its parameters agree with one machine's to
-   rounding only (expected counts are added per partition first), well inside ``rtol=1e-9``.
+   equal to the bit too.  BKT runs EM with the E-step on every partition's attempt block and the sums and
+   M-step on the client (:meth:`rulefeat.mastery.BKT.fit_expected`), one task per worker and iteration
+   for all the blocks it holds; its parameters agree with one machine's to rounding only (expected counts
+   are added per partition first), well inside ``rtol=1e-9``.
 
 The mined features' selection (constant / duplicate / ``max_features``) reads the candidate features of
-the training units, computed per partition and brought back as a units-by-features table.
+the training units, computed per partition (a third pass) and brought back as a units-by-features table.
 """
 
 from __future__ import annotations
@@ -83,8 +86,11 @@ def units_by_partition(dlog: DistributedLog, students) -> dict[int, np.ndarray]:
 
 
 def shared_labels(dlog: DistributedLog, client) -> dict[str, pd.Index]:
-    """Labels of every category field over all partitions, sorted as one log of every event sorts them."""
-    found = client.gather([client.submit(_categories, f) for f in dlog.partition_logs(client)])
+    """Labels of every category field over all partitions, sorted as one log of every event sorts them.
+
+    Read from every partition once per ``dlog`` (:meth:`DistributedLog.per_partition`).
+    """
+    found = dlog.per_partition(client, _categories)
     fields = dict.fromkeys(name for cats in found for name in cats)
     out = {}
     for name in fields:
@@ -117,18 +123,16 @@ class _Fit:
                             "learn from.")
         by_part = units_by_partition(dlog, known)
         self.train = {k: known.iloc[rows].to_numpy() for k, rows in by_part.items()}
-        self.logs = dlog.partition_logs(client)
         self.labels = shared_labels(dlog, client)
         first = min(self.train)
         # The transformer checks X and compiles against one training student's events: the schema (kinds)
         # only; every fitted value comes from the partitions below.
-        sample = client.submit(_one_student, self.logs[first], self.train[first][0]).result()
+        sample = dlog.submit(client, first, _one_student, self.train[first][0]).result()
         self.est.set_params(log=sample)
 
     def _each(self, function, *args) -> list:
         """``function(partition log, training students, *args)`` on every partition with training students."""
-        return [self.client.submit(function, self.logs[k], students, *args, pure=False)
-                for k, students in self.train.items()]
+        return [self.dlog.submit(self.client, k, function, students, *args) for k, students in self.train.items()]
 
     def _done(self):
         self.est.action_labels_ = [str(a) for a in self.labels.get("action", self.est.action_labels_)]
@@ -145,20 +149,25 @@ class _Fit:
     def mined(self, y) -> LogFeatures:
         self.est.prepare_fit(self.X)
         settings = self.est.settings_
-        state = {}
-        for name in self.est.families_:
-            family = FAMILIES[name]
-            if family.fit is None:
-                state[name] = None
-            elif family.gather is not None:
-                pieces = self._each(_gather, name, settings, self.labels)
-                state[name] = self.client.submit(_fit_gathered, name, settings, self.labels, *pieces,
-                                                 pure=False).result()
-            elif name == "mastery":
-                state[name] = self._mastery(settings)
-            else:
+        fitted = [name for name in self.est.families_ if FAMILIES[name].fit is not None]
+        gathered = [name for name in fitted if FAMILIES[name].gather is not None]
+        for name in fitted:
+            if name not in gathered and name != "mastery":
                 raise ParameterError(f"rulefeat.scale.fit: the mined family {name!r} learns state but has no "
                                      "way to be fitted across partitions (give it gather/fit_gathered).")
+        # One pass reads every partition for all the families; its results stay on the workers, split by use.
+        skills = self.labels.get("skill") if "mastery" in fitted else None
+        passes = self._each(_mined_pass, gathered, settings, self.labels, "mastery" in fitted, skills,
+                            self.dlog.students)
+        state = {name: None for name in self.est.families_}
+        for name in gathered:
+            pieces = [self.client.submit(_part, p, "gather", name, pure=False) for p in passes]
+            state[name] = self.client.submit(_fit_gathered, name, settings, self.labels, *pieces,
+                                             pure=False).result()
+        if "mastery" in fitted:
+            state["mastery"] = self._mastery(settings, [self.client.submit(_part, p, "judged", pure=False)
+                                                        for p in passes], skills)
+        del passes
         self.est.keep_family_state(state)
         self.est.finish_fit(self._candidates(), y, len(self.X))
         return self._done()
@@ -166,29 +175,27 @@ class _Fit:
     def _candidates(self) -> dict:
         """Every candidate feature of the training units, computed where their students' events are."""
         rows = units_by_partition(self.dlog, self.X[self.unit.student])
-        futures = [self.client.submit(_candidate_columns, self.logs[k], self.est, self.X.iloc[r], pure=False)
+        futures = [self.dlog.submit(self.client, k, _candidate_columns, self.est, self.X.iloc[r])
                    for k, r in rows.items()]
         parts = self.client.gather(futures)
         order = np.argsort(np.concatenate(list(rows.values())), kind="stable")
         return {name: np.concatenate([p[name] for p in parts])[order] for name in parts[0]}
 
     # -- BKT: the E-step on the partitions, the M-step here -----------------------------------------------
-    def _mastery(self, settings) -> MasteryState | None:
-        counts = self.client.gather(self._each(_judged_counts, self.dlog.students))
+    def _mastery(self, settings, judged: list, skills) -> MasteryState | None:
+        counts = self.client.gather([self.client.submit(_judged_counts, j, pure=False) for j in judged])
         codes = np.concatenate([c for c, _ in counts])
         n = np.concatenate([n for _, n in counts])
         if not n.sum():
             return None
-        keep = {k: None for k in self.train}
+        keep = None
         if settings.bkt_max_attempts is not None and n.sum() > settings.bkt_max_attempts:
             order = np.argsort(codes)
-            chosen = set(self.dlog.students[codes[order][students_kept(n[order], settings)]])
-            keep = {k: np.array([s for s in students if s in chosen], dtype=object)
-                    for k, students in self.train.items()}
-        skills = self.labels.get("skill")
-        blocks = [self.client.submit(_attempt_block, self.logs[k], students, skills, keep[k], pure=False)
-                  for k, students in self.train.items()]
-        n_codes = max(self.client.gather([self.client.submit(_n_codes, b) for b in blocks]))
+            keep = codes[order][students_kept(n[order], settings)]
+        blocks = [self.client.submit(_attempt_block, j, keep, pure=False) for j in judged]
+        del judged  # the judged attempts are freed once their blocks are laid out
+        n_codes = max(self.client.gather([self.client.submit(_n_codes, b, pure=False) for b in blocks]))
+        blocks = _Blocks(self.client, blocks)
         skill_counts = self._sum(_skill_counts, blocks, n_codes)
         options = {**settings.bkt_options, "random_state": settings.random_state}
         model = BKT(**options).fit_expected(
@@ -196,12 +203,36 @@ class _Fit:
             lambda own, model, params: self._sum(_expected, blocks, own, model, params))
         return MasteryState(model, skills)
 
-    def _sum(self, function, blocks, *args) -> np.ndarray:
-        parts = self.client.gather([self.client.submit(function, b, *args, pure=False) for b in blocks])
+    def _sum(self, function, blocks: _Blocks, *args) -> np.ndarray:
+        """``function(block, *args)`` summed over the blocks in partition order."""
+        parts = blocks.each(function, *args)
         total = parts[0].copy()
         for part in parts[1:]:  # in partition order, so a repeated fit adds in the same order
             total += part
         return total
+
+
+class _Blocks:
+    """Attempt blocks held on the workers, run on in one task per worker (an EM iteration is one round trip
+    of as many tasks as workers, not as partitions); results come back in the blocks' order."""
+
+    def __init__(self, client, blocks: list):
+        self.client, self.blocks = client, blocks
+        held = client.who_has(blocks)
+        self.groups: dict = {}
+        for j, block in enumerate(blocks):
+            where = tuple(held.get(block.key) or ())[:1] or (None,)
+            self.groups.setdefault(where[0], []).append(j)
+
+    def each(self, function, *args) -> list:
+        futures = [self.client.submit(_on_blocks, function, [self.blocks[j] for j in js], *args, pure=False,
+                                      workers=None if worker is None else [worker], allow_other_workers=True)
+                   for worker, js in self.groups.items()]
+        out: list = [None] * len(self.blocks)
+        for js, results in zip(self.groups.values(), self.client.gather(futures), strict=True):
+            for j, result in zip(js, results, strict=True):
+                out[j] = result
+        return out
 
 
 # -- tasks (run on the workers) ---------------------------------------------------------------------------
@@ -218,10 +249,13 @@ def _recode(codes: np.ndarray, local: pd.Index | None, shared: pd.Index | None) 
 
 def _norm_values(log, students, program, labels, all_students):
     sub = log.for_students(students)
+    # Each student's number in the whole dataset (int32 halves what travels to the reducer); looked up once
+    # per student, not per value.
+    numbers = _frame.codes_for(sub.students, all_students).astype(np.int32)
     out = []
     for piece in program.norm_values(sub):
         shared = labels[piece["per"]]
-        order = _frame.codes_for(sub.students[piece["student"]], all_students)
+        order = numbers[piece["student"]]
         out.append((piece["per"], piece["values"], _recode(piece["keys"], piece["labels"], shared), order))
     return out
 
@@ -229,17 +263,35 @@ def _norm_values(log, students, program, labels, all_students):
 def _fit_norms(program, labels, *pieces):
     gathered = []
     for j, (per, *_) in enumerate(pieces[0]):
-        values = np.concatenate([p[j][1] for p in pieces])
-        keys = np.concatenate([p[j][2] for p in pieces])
         # One partition's values are in its log's order (student, then time): a stable sort on the
         # student puts them in the order of one log of all the events, so sums add up the same way.
+        # Each concatenation is dropped as soon as it is put in order: the reducer's memory peaks lower.
         order = np.argsort(np.concatenate([p[j][3] for p in pieces]), kind="stable")
-        gathered.append({"values": values[order], "keys": keys[order], "labels": labels[per]})
+        gathered.append({"values": np.concatenate([p[j][1] for p in pieces])[order],
+                         "keys": np.concatenate([p[j][2] for p in pieces])[order], "labels": labels[per]})
+        del order
     return program.fit_values(gathered)
 
 
-def _gather(log, students, name, settings, labels):
+def _mined_pass(log, students, gathered, settings, labels, mastery, skills, all_students) -> dict:
+    """All that the mined families' fit needs from one partition: gathered pieces and judged attempts."""
     train = TrainingEvents(log, log.student_codes(students))
+    out = {"gather": {name: _gather(train, name, settings, labels) for name in gathered}}
+    if mastery:
+        judged = judged_positions(train)
+        student, skill, correct = attempt_arrays(log, judged, skills)
+        # Each attempt's student numbered as in the whole dataset, for the attempt budget's choice.
+        out["judged"] = (_frame.codes_for(log.students, all_students)[student], skill, correct)
+    return out
+
+
+def _part(result: dict, *keys):
+    for key in keys:
+        result = result[key]
+    return result
+
+
+def _gather(train, name, settings, labels):
     pieces = FAMILIES[name].gather(train, settings)
     codes = {key: _recode(c, pieces["labels"][key], labels.get(key)) for key, c in pieces["codes"].items()}
     shared = {key: (labels.get(key) if pieces["labels"][key] is not None else None) for key in pieces["labels"]}
@@ -263,19 +315,21 @@ def _candidate_columns(log, est, X):
     return local.candidate_columns(X)
 
 
-def _judged_counts(log, students, all_students):
-    train = TrainingEvents(log, log.student_codes(students))
-    student = log.values("student")[judged_positions(train)]
-    codes, counts = np.unique(student, return_counts=True)
-    return _frame.codes_for(log.students[codes], all_students), counts
+def _judged_counts(judged):
+    return np.unique(judged[0], return_counts=True)
 
 
-def _attempt_block(log, students, skills, keep):
-    train = TrainingEvents(log, log.student_codes(students))
-    judged = judged_positions(train)
+def _attempt_block(judged, keep):
+    """The partition's attempt block: its judged attempts, of the students ``keep`` (dataset codes) if given."""
+    student, skill, correct = judged
     if keep is not None:
-        judged = judged[np.isin(log.values("student")[judged], log.student_codes(keep))]
-    return AttemptBlock(*attempt_arrays(log, judged, skills))
+        chosen = np.isin(student, keep)
+        student, skill, correct = student[chosen], skill[chosen], correct[chosen]
+    return AttemptBlock(student, skill, correct)
+
+
+def _on_blocks(function, blocks, *args) -> list:
+    return [function(block, *args) for block in blocks]
 
 
 def _n_codes(block) -> int:

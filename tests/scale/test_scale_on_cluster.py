@@ -95,6 +95,23 @@ def test_mined_state_and_features_equal_one_machine(client, data):
     np.testing.assert_allclose(out_there[mastery].to_numpy(), out_here[mastery].to_numpy(), rtol=1e-9)
 
 
+def _held_types(dask_worker) -> list[str]:
+    return [type(value).__name__ for value in dask_worker.data.values()]
+
+
+def test_no_partition_log_stays_on_a_worker_between_passes(client, data):
+    _, dlog, units, train = data
+    mined = scale.fit(LogFeatures(None, families=["timing", "mastery"], bkt_options=BKT_FAST), dlog, train,
+                      client=client)
+    scale.transform(mined, dlog, units, client=client)
+    held = [name for names in client.run(_held_types).values() for name in names]
+    assert "EventLog" not in held, held
+    # A task of our own gets its partition's log built for it, and the log is gone once it returns.
+    assert client.gather([dlog.submit(client, k, len) for k in range(dlog.n_partitions)]) == \
+        [len(dlog.load(k)) for k in range(dlog.n_partitions)]
+    assert "EventLog" not in [name for names in client.run(_held_types).values() for name in names]
+
+
 def test_the_bkt_attempt_budget_picks_the_same_students(client, data):
     log, dlog, _, train = data
     options = {"families": ["mastery"], "random_state": 11, "bkt_max_attempts": 900,

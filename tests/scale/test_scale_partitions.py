@@ -9,7 +9,14 @@ from _scale_data import simulated
 
 from rulefeat import EventLog
 from rulefeat.errors import LogSchemaError, ParameterError
-from rulefeat.scale import DistributedLog, PartitionWriter, student_partition, write_partitioned
+from rulefeat.scale import (
+    PARTITION_EVENTS,
+    DistributedLog,
+    PartitionWriter,
+    partitions_for,
+    student_partition,
+    write_partitioned,
+)
 
 pytest.importorskip("pyarrow")
 pytest.importorskip("fsspec")
@@ -59,14 +66,19 @@ def test_the_hash_is_stable_and_spreads_students():
     assert counts.min() > 850  # about 1000 each (common practice, no source: a loose uniformity check)
 
 
-def test_streamed_chunks_give_the_same_partitions_as_one_write(tmp_path):
+@pytest.mark.parametrize("buffer_events", [1, 4_000_000])
+def test_streamed_chunks_give_the_same_partitions_as_one_write(tmp_path, buffer_events):
     events, _ = simulated()
     students = sorted(events["student"].unique())
-    with PartitionWriter(tmp_path / "streamed", 3) as out:
-        for chunk in np.array_split(np.array(students, dtype=object), 4):
+    chunks = np.array_split(np.array(students, dtype=object), 4)
+    with PartitionWriter(tmp_path / "streamed", 3, buffer_events=buffer_events) as out:
+        for chunk in chunks:
             out.write(events[events["student"].isin(set(chunk))])
     streamed, whole = DistributedLog(tmp_path / "streamed"), write_partitioned(events, tmp_path / "whole", 3)
-    assert sum(len(streamed.files(k)) for k in range(3)) > 3  # a chunk file per partition and chunk
+    # A full buffer writes a chunk file per partition and write; a large one a file per partition at closing.
+    per_write = sum(len(set(student_partition(chunk, 3))) for chunk in chunks)
+    assert sum(len(streamed.files(k)) for k in range(3)) == (per_write if buffer_events == 1 else 3)
+    assert per_write > 3
     for k in range(3):
         a = streamed.read(k).reset_index(drop=True)
         b = whole.read(k).reset_index(drop=True)
@@ -100,6 +112,8 @@ def test_refusals_name_the_problem(tmp_path):
     events, _ = simulated(12)
     with pytest.raises(ParameterError, match="'n_partitions' parameter of PartitionWriter"):
         PartitionWriter(tmp_path / "a", 0)
+    with pytest.raises(ParameterError, match="'buffer_events' parameter of PartitionWriter"):
+        PartitionWriter(tmp_path / "a", 2, buffer_events=0)
     write_partitioned(events, tmp_path / "b", 2)
     with pytest.raises(ParameterError, match="is not empty"):
         write_partitioned(events, tmp_path / "b", 2)
@@ -113,6 +127,8 @@ def test_refusals_name_the_problem(tmp_path):
     dlog = DistributedLog(tmp_path / "b")
     with pytest.raises(ParameterError, match="partition 2 does not exist"):
         dlog.load(2)
+    with pytest.raises(ParameterError, match=r"DistributedLog.submit: partition 2 does not exist; there are 2"):
+        dlog.submit(None, 2, len)  # refused before any cluster is asked
 
 
 def test_a_renamed_student_column_is_read_through_log_options(tmp_path):
@@ -121,3 +137,15 @@ def test_a_renamed_student_column_is_read_through_log_options(tmp_path):
     dlog = write_partitioned(raw, tmp_path / "ds", 2, log_options={"columns": {"student": "learner"}})
     assert sorted(dlog.students) == sorted(events["student"].unique())
     assert sum(len(dlog.load(k) or []) for k in range(2)) == len(events)
+
+
+def test_the_default_partition_count_keeps_partitions_near_the_target_size(tmp_path):
+    assert PARTITION_EVENTS == 500_000
+    assert [partitions_for(n) for n in (0, 1, 500_000, 500_001, 50_000_000)] == [1, 1, 1, 2, 100]
+    assert partitions_for(2_500, events_per_partition=1_000) == 3
+    events, _ = simulated(12)
+    assert write_partitioned(events, tmp_path / "ds").n_partitions == 1  # a few thousand events: one partition
+    with pytest.raises(ParameterError, match="'events_per_partition' parameter of partitions_for"):
+        partitions_for(10, events_per_partition=0)
+    with pytest.raises(ParameterError, match="'n_events' parameter of partitions_for"):
+        partitions_for(-1)
