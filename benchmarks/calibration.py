@@ -206,10 +206,17 @@ def score(case: dict) -> None:
           f"± {float(case['truth_se']):.4f} (MC se); mean fold Δ {d.mean():+.4f}")
     for label, proc, r in procedures(int(repeat.max()) + 1, str(case["design"]).startswith("splits")):
         mean, se, df = proc(d, repeat, n_train, n_test, r)
+        print(f"  {label:<44} mean se² / variance of its Δ over the datasets: "
+              f"{np.mean(se ** 2) / mean.var(ddof=1):.2f} (> 1: the se overstates)")
         for readout, (rejects, covers, width) in readouts(mean, se, df, truth).items():
             print(f"  {label:<44} {readout:<33} rejects {fmt(share(rejects))}  covers {fmt(share(covers))}  "
                   f"half-width {np.mean(width):.4f}")
     mean = d.mean(axis=1)
+    # The fold correlation the corrected t assumes, rho/(1-rho) = n_test/n_train, against the one implied by the
+    # datasets: var(mean) / E[var(d)] = rho/(1-rho) + 1/J for J equicorrelated differences.
+    implied = mean.var(ddof=1) / d.var(axis=1, ddof=1).mean() - 1.0 / d.shape[1]
+    print(f"  fold correlation rho/(1-rho): assumed {np.mean(n_test / n_train):.3f}, implied by the datasets "
+          f"{implied:.3f}")
     for readout, (rejects, covers, width) in readouts(mean, case["ic_se"], np.inf, truth).items():
         print(f"  {'clustered influence-value SE (models fixed)':<44} {readout:<33} rejects {fmt(share(rejects))}  "
               f"covers {fmt(share(covers))}  half-width {np.mean(width):.4f}")
