@@ -287,7 +287,7 @@ def simulator_null(args, seed0: int, parallel) -> None:
     if args.simulator == 0:
         return
     t0 = time.perf_counter()
-    p = np.asarray(parallel(joblib.delayed(simulator_p)(args, seed0 + k) for k in range(args.simulator)))
+    p = np.array(list(parallel(joblib.delayed(simulator_p)(args, seed0 + k) for k in range(args.simulator))))
     print(f"\nsimulator null knob (every label link 0): {args.simulator} logs of {args.students} students, "
           f"{design(args)} ({time.perf_counter() - t0:.0f} s)")
     print(f"  rejects at α={ALPHA} (the headline's own p-value): {fmt(share(p < ALPHA))}")
