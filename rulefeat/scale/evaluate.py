@@ -14,6 +14,7 @@ runs each fold as a cluster task.  Folds, seeds, statistics and the results dict
 from __future__ import annotations
 
 import hashlib
+import uuid
 
 import joblib
 import numpy as np
@@ -97,7 +98,7 @@ class ClusterFolds:
             if key not in tables:
                 # Kept on the cluster, not in the fold loop's job: each fold task fetches its own tables.
                 tables[key] = self.client.scatter([self._fold(train, test, y[train])], hash=False)[0]
-        return FoldTables(tables)
+        return FoldTables(tables, self.client)
 
     def _fold(self, train, test, y_train):
         Xtr = self.X.iloc[train]
@@ -114,26 +115,39 @@ class ClusterFolds:
 class FoldTables:
     """The fold loop's feature source once every fold's tables are computed: a lookup by fold.
 
-    The tables are futures of data scattered to the cluster; this object travels to the fold tasks with
-    the keys only (a future does not survive joblib's pickling) and each task fetches its fold's tables.
-    The client's copy holds the futures, which keeps the data alive while the fold loop runs.
+    The tables are data scattered to the cluster and published there under names of their own (a future
+    does not survive joblib's pickling, and a bare key looked up by a worker's client never resolves);
+    this object travels to the fold tasks with the names only and each task fetches its fold's tables.
+    The client's copy holds the futures, and :meth:`close` (called when the fold loop ends) unpublishes
+    them so the cluster lets the tables go.
     """
 
-    def __init__(self, tables: dict):
-        self.tables = tables
+    def __init__(self, tables: dict, client=None):
+        self.tables, self.client = tables, client
+        self.names = {fold: f"rulefeat-fold-{uuid.uuid4().hex}" for fold in tables}
+        if client is not None:
+            for fold, future in tables.items():
+                client.publish_dataset(future, name=self.names[fold])
 
     def __getstate__(self) -> dict:
-        return {"keys": {fold: future.key for fold, future in self.tables.items()}}
+        # A copy that already travelled may travel again (a worker spilling or handing on its task).
+        return {"names": dict(self.names)}
 
     def __setstate__(self, state: dict) -> None:
-        self.keys = state["keys"]
+        self.names = state["names"]
 
     def features(self, train: np.ndarray, test: np.ndarray, y_train: np.ndarray):
         fold = fold_key(train, test)
         if hasattr(self, "tables"):
             return self.tables[fold].result()
         distributed = require("distributed")
-        return distributed.Future(self.keys[fold], client=distributed.get_client()).result()
+        return distributed.get_client().get_dataset(self.names[fold]).result()
+
+    def close(self) -> None:
+        if getattr(self, "client", None) is not None:
+            for name in self.names.values():
+                self.client.unpublish_dataset(name)
+            self.client, self.tables = None, {}
 
 
 def fold_key(train: np.ndarray, test: np.ndarray) -> str:

@@ -119,7 +119,11 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
     job = Job(source, inputs.y, inputs.students, model, inputs.task, settings["ablation"], settings["fractions"],
               threads if workers > 1 else None)
     t1 = time.perf_counter()
-    outcomes = run_all(job, tasks, workers, settings["verbose"])
+    try:
+        outcomes = run_all(job, tasks, workers, settings["verbose"])
+    finally:
+        if hasattr(source, "close"):  # a source holding data elsewhere (rulefeat.scale) lets it go
+            source.close()
     t2 = time.perf_counter()
     context = _assemble.Context(inputs=inputs, settings=settings, seeds=seeds, model=model,
                                 rule_info=rule_info, rules_hash=rules_hash, ablation_rules=ablation_rules,
