@@ -167,6 +167,8 @@ def main() -> None:
             simulate_s = time.perf_counter() - t0
             with PeakMemory(client) as memory:
                 timing = featurize(dlog, windows, client)
+                print(f"{dlog.n_events:,} events featurized in {timing['total']:.1f} s "
+                      f"(fit {timing['fit']:.1f} s, transform {timing['transform']:.1f} s)", flush=True)
                 eval_s = float("nan") if args.no_evaluate else evaluate(dlog, windows, client)
             peak = max((v for k, v in memory.peak.items() if k != "client"), default=float("nan"))
             single_s = single_process(dlog, windows) if args.single and n == min(sizes) else float("nan")
