@@ -169,6 +169,7 @@ def main() -> None:
                 timing = featurize(dlog, windows, client)
                 print(f"{dlog.n_events:,} events featurized in {timing['total']:.1f} s "
                       f"(fit {timing['fit']:.1f} s, transform {timing['transform']:.1f} s)", flush=True)
+                client.run(_collect)
                 eval_s = float("nan") if args.no_evaluate else evaluate(dlog, windows, client)
             peak = max((v for k, v in memory.peak.items() if k != "client"), default=float("nan"))
             single_s = single_process(dlog, windows) if args.single and n == min(sizes) else float("nan")
@@ -196,8 +197,15 @@ def main() -> None:
 
 
 def _collect() -> None:
+    """Between sizes: collect garbage and hand freed heap back to the OS (glibc keeps it otherwise, and a
+    worker then starts the next size already holding the last one's peak as unmanaged memory)."""
+    import ctypes
     import gc
     gc.collect()
+    try:
+        ctypes.CDLL("libc.so.6").malloc_trim(0)
+    except (OSError, AttributeError):  # not glibc
+        pass
 
 
 if __name__ == "__main__":
