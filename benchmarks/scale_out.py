@@ -197,8 +197,8 @@ def main() -> None:
 
 
 def _collect() -> None:
-    """Between sizes: collect garbage and hand freed heap back to the OS (glibc keeps it otherwise, and a
-    worker then starts the next size already holding the last one's peak as unmanaged memory)."""
+    """Between stages and sizes: collect garbage and hand freed heap back to the OS (glibc keeps it otherwise,
+    and a worker then starts the next stage already holding the last one's peak as unmanaged memory)."""
     import ctypes
     import gc
     gc.collect()

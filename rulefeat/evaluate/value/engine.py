@@ -109,17 +109,17 @@ def _evaluate(inputs, source, rule_info, rules_hash, ablation_rules, model, sett
               notes, command, t0):
     """Run every fold and assemble the results dict and the out-of-fold tables."""
     tasks, cv_folds, pop_folds = _tasks(inputs, settings, seeds)
-    if hasattr(source, "for_tasks"):  # a source that computes every fold's features up front (rulefeat.scale)
-        source = source.for_tasks(tasks, inputs.y)
     workers, threads = thread_budget(n_jobs, len(tasks))
     if model is None:
         n_train = np.mean([len(t.fold.train) for t in tasks])
         model = default_model(inputs.task, seeds.model, model_threads(threads, n_train))
-    model = _check_model(model, inputs.task)
-    job = Job(source, inputs.y, inputs.students, model, inputs.task, settings["ablation"], settings["fractions"],
-              threads if workers > 1 else None)
+    model = _check_model(model, inputs.task)  # before any fold's features are computed
+    if hasattr(source, "for_tasks"):  # a source that computes every fold's features up front (rulefeat.scale)
+        source = source.for_tasks(tasks, inputs.y)
     t1 = time.perf_counter()
     try:
+        job = Job(source, inputs.y, inputs.students, model, inputs.task, settings["ablation"],
+                  settings["fractions"], threads if workers > 1 else None)
         outcomes = run_all(job, tasks, workers, settings["verbose"])
     finally:
         if hasattr(source, "close"):  # a source holding data elsewhere (rulefeat.scale) lets it go
